@@ -1,0 +1,30 @@
+# Every target creates the virtual environment on first use, so a fresh clone
+# needs nothing but Python 3.11 (or newer) on the PATH.
+PYTHON ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed
+
+.PHONY: demo test lint bench clean
+
+$(STAMP): pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e ".[test]"
+	touch $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/rootvar demo
+
+lint: $(STAMP)
+	$(BIN)/ruff check .
+	$(BIN)/ruff format --check .
+
+test: lint
+	$(BIN)/python -m pytest
+
+bench: $(STAMP)
+	$(BIN)/python -m benchmarks
+
+clean:
+	rm -rf $(VENV) .pytest_cache .ruff_cache .hypothesis

@@ -1,0 +1,1 @@
+"""rootvar.addin: spreadsheet functions, workbook reading/writing and the command line."""

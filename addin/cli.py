@@ -1,0 +1,119 @@
+"""The ``rootvar`` command line: ``rootvar demo`` and ``rootvar report``."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+import pandas as pd
+
+from rootvar.core import (
+    HestonParams,
+    InputError,
+    __version__,
+    euler_max_step,
+    euler_negative_probability,
+    variance_report,
+)
+
+from .demo_desk import DESK_NAME, demo_models
+
+CAUTION = (
+    "Caution: rootvar outputs support, and do not replace, independent model validation "
+    "under your own model-risk policy."
+)
+
+
+def _floats(text: str) -> list[float]:
+    try:
+        return [float(x) for x in text.split(",") if x.strip()]
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(f"expected comma-separated numbers, got {text!r}") from exc
+
+
+def _print_report(params: HestonParams, horizons, dt: float, tolerance: float, out) -> None:
+    p = params
+    table = variance_report(p, horizons, dt=dt)
+    neg = euler_negative_probability(p.v0, p.kappa, p.theta, p.vol_of_vol, dt)
+    safe = euler_max_step(p.v0, p.kappa, p.theta, p.vol_of_vol, tolerance)
+    print(f"  Feller ratio {p.feller_ratio:.4f} ({table.attrs['regime']})", file=out)
+    print(f"  Euler one-step negative probability from v0 at dt={dt:.6g} y: {neg:.3e}", file=out)
+    safe_text = (
+        "any step" if safe == float("inf") else f"{safe:.6g} y ({safe * 252:.3g} trading days)"
+    )
+    print(f"  Largest Euler step keeping it <= {tolerance:g}: {safe_text}", file=out)
+    shown = table.drop(columns=["feller_ratio", "regime"])
+    with pd.option_context(
+        "display.width", 160, "display.max_columns", 40, "display.float_format", "{:.4g}".format
+    ):
+        print(shown.T.to_string(), file=out)
+
+
+def _cmd_report(args) -> int:
+    params = HestonParams(args.v0, args.kappa, args.theta, args.vol_of_vol, args.rho)
+    print(f"rootvar {__version__} variance report", file=sys.stdout)
+    _print_report(params, args.horizons, args.dt, args.tolerance, sys.stdout)
+    print(CAUTION)
+    return 0
+
+
+def _cmd_demo(args) -> int:
+    print(f"rootvar {__version__} - {DESK_NAME} (invented demo data)\n")
+    for model in demo_models():
+        print(f"{model.model_id}  {model.underlying}  spot {model.spot:g}")
+        _print_report(model.params, args.horizons, args.dt, args.tolerance, sys.stdout)
+        print()
+    print(CAUTION)
+    return 0
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(prog="rootvar", description=__doc__)
+    parser.add_argument("--version", action="version", version=f"rootvar {__version__}")
+    sub = parser.add_subparsers(dest="command", required=True)
+
+    common = argparse.ArgumentParser(add_help=False)
+    common.add_argument(
+        "--horizons",
+        type=_floats,
+        default=[0.25, 1.0, 5.0],
+        help="horizons in years, comma-separated (default 0.25,1,5)",
+    )
+    common.add_argument(
+        "--dt",
+        type=float,
+        default=1.0 / 252.0,
+        help="production Euler step in years (default 1/252)",
+    )
+    common.add_argument(
+        "--tolerance",
+        type=float,
+        default=1e-3,
+        help="acceptable one-step negative probability (default 1e-3)",
+    )
+
+    report = sub.add_parser(
+        "report", parents=[common], help="variance report for one parameter set"
+    )
+    for name in ("v0", "kappa", "theta", "vol-of-vol", "rho"):
+        report.add_argument(f"--{name}", type=float, required=True)
+    report.set_defaults(func=_cmd_report)
+
+    demo = sub.add_parser("demo", parents=[common], help="report on the invented demo desk")
+    demo.set_defaults(func=_cmd_demo)
+    return parser
+
+
+def main(argv=None) -> int:
+    """Entry point of the ``rootvar`` console command; returns the exit code."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return args.func(args)
+    except InputError as exc:
+        print(f"rootvar: {exc}", file=sys.stderr)
+        return 2
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,34 @@
+"""rootvar.core: pure numpy/scipy numerics for Heston variance checks and pricing.
+
+This package never imports the spreadsheet layer (``rootvar.addin``),
+xlwings or openpyxl.
+"""
+
+from importlib.metadata import PackageNotFoundError, version
+
+from .cir_law import TINY_VARIANCE, cir_stationary, cir_transition, cir_transition_shapes
+from .params import HestonParams
+from .report import DEFAULT_QUANTILES, variance_report
+from .validation import InputError
+from .variance import euler_max_step, euler_negative_probability, feller_ratio, regime_label
+
+try:
+    __version__ = version("rootvar")
+except PackageNotFoundError:  # running from a source tree that is not installed
+    __version__ = "0+unknown"
+
+__all__ = [
+    "DEFAULT_QUANTILES",
+    "TINY_VARIANCE",
+    "HestonParams",
+    "InputError",
+    "__version__",
+    "cir_stationary",
+    "cir_transition",
+    "cir_transition_shapes",
+    "euler_max_step",
+    "euler_negative_probability",
+    "feller_ratio",
+    "regime_label",
+    "variance_report",
+]

@@ -1,0 +1,107 @@
+"""Argument checks shared by every public entry of the core.
+
+Every public function validates its inputs once, here, and raises
+:class:`InputError` (a ``ValueError``) whose message names the argument, the
+rule and the offending value, e.g. ``kappa must be > 0, got -0.5``.
+"""
+
+from __future__ import annotations
+
+import math
+import numbers
+
+import numpy as np
+
+__all__ = [
+    "InputError",
+    "as_float_array",
+    "as_positive_int",
+    "broadcast",
+    "check_choice",
+    "scalar_or_array",
+]
+
+
+class InputError(ValueError):
+    """A public argument broke its documented rule."""
+
+
+_RULES = {
+    "finite": (lambda a: np.isfinite(a), "must be finite"),
+    ">0": (lambda a: a > 0, "must be > 0"),
+    ">=0": (lambda a: a >= 0, "must be >= 0"),
+    "[-1,1]": (lambda a: (a >= -1) & (a <= 1), "must lie in [-1, 1]"),
+    "(0,1)": (lambda a: (a > 0) & (a < 1), "must lie in (0, 1)"),
+    "[0,1]": (lambda a: (a >= 0) & (a <= 1), "must lie in [0, 1]"),
+}
+
+
+def _show(value: object) -> str:
+    return repr(float(value)) if isinstance(value, numbers.Real) else repr(value)
+
+
+def as_float_array(name: str, value: object, *rules: str) -> np.ndarray:
+    """Return ``value`` as a float array after checking ``rules``.
+
+    Parameters
+    ----------
+    name : str
+        Argument name used in the error message.
+    value : array_like
+        Number or array of numbers.  Booleans and strings are refused.
+    *rules : str
+        Keys of the rule table: ``"finite"``, ``">0"``, ``">=0"``,
+        ``"[-1,1]"``, ``"(0,1)"``, ``"[0,1]"``.  ``"finite"`` is always applied.
+
+    Raises
+    ------
+    InputError
+        Naming ``name``, the broken rule and the first offending value.
+    """
+    if isinstance(value, (bool, np.bool_, str, bytes)) or value is None:
+        raise InputError(f"{name} must be a number, got {value!r}")
+    try:
+        arr = np.asarray(value, dtype=float)
+    except (TypeError, ValueError) as exc:
+        raise InputError(f"{name} must be a number or an array of numbers, got {value!r}") from exc
+    if arr.dtype == object or (arr.size and np.asarray(value).dtype.kind in "bUSO"):
+        raise InputError(f"{name} must be numeric, got {value!r}")
+    for key in ("finite", *rules):
+        test, text = _RULES[key]
+        ok = test(arr)
+        if not np.all(ok):
+            bad = arr[~ok] if arr.ndim else arr
+            raise InputError(f"{name} {text}, got {_show(np.ravel(bad)[0])}")
+    return arr
+
+
+def as_positive_int(name: str, value: object) -> int:
+    """Return ``value`` as a positive ``int``; refuse 2.5, 0, -3, True, "10"."""
+    if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
+        raise InputError(f"{name} must be a positive whole number, got {value!r}")
+    if not math.isfinite(value) or value != int(value) or value < 1:
+        raise InputError(f"{name} must be a positive whole number, got {value!r}")
+    return int(value)
+
+
+def check_choice(name: str, value: object, choices) -> str:
+    """Return ``value`` if it is one of ``choices`` (strings), else raise."""
+    if not isinstance(value, str) or value not in choices:
+        listed = ", ".join(repr(c) for c in choices)
+        raise InputError(f"{name} must be one of {listed}, got {value!r}")
+    return value
+
+
+def broadcast(**arrays: np.ndarray) -> list[np.ndarray]:
+    """Broadcast named arrays together; a shape clash names the arguments."""
+    try:
+        return list(np.broadcast_arrays(*arrays.values()))
+    except ValueError as exc:
+        shapes = ", ".join(f"{k} {np.shape(v)}" for k, v in arrays.items())
+        raise InputError(f"arguments must broadcast to one shape, got {shapes}") from exc
+
+
+def scalar_or_array(result: np.ndarray):
+    """Return a Python float for 0-d results, the array otherwise."""
+    result = np.asarray(result)
+    return float(result) if result.ndim == 0 else result
