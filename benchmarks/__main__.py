@@ -7,7 +7,7 @@ import sys
 
 from .timing import machine_line
 
-ALL = ["variance"]
+ALL = ["variance", "fourier"]
 
 
 def main(argv: list[str]) -> int:

@@ -6,7 +6,10 @@ xlwings or openpyxl.
 
 from importlib.metadata import PackageNotFoundError, version
 
+from .black_scholes import bs_price, implied_vol, implied_vol_reason
 from .cir_law import TINY_VARIANCE, cir_stationary, cir_transition, cir_transition_shapes
+from .fourier import FourierDetails, heston_implied_vol, heston_price, heston_price_details
+from .fourier_check import FourierCheckError, lewis_call_price
 from .params import HestonParams
 from .report import DEFAULT_QUANTILES, variance_report
 from .validation import InputError
@@ -20,15 +23,24 @@ except PackageNotFoundError:  # running from a source tree that is not installed
 __all__ = [
     "DEFAULT_QUANTILES",
     "TINY_VARIANCE",
+    "FourierCheckError",
+    "FourierDetails",
     "HestonParams",
     "InputError",
     "__version__",
+    "bs_price",
     "cir_stationary",
     "cir_transition",
     "cir_transition_shapes",
     "euler_max_step",
     "euler_negative_probability",
     "feller_ratio",
+    "heston_implied_vol",
+    "heston_price",
+    "heston_price_details",
+    "implied_vol",
+    "implied_vol_reason",
+    "lewis_call_price",
     "regime_label",
     "variance_report",
 ]
