@@ -7,7 +7,7 @@ import sys
 
 from .timing import machine_line
 
-ALL = ["variance", "fourier"]
+ALL = ["variance", "fourier", "monte_carlo"]
 
 
 def main(argv: list[str]) -> int:

@@ -10,10 +10,21 @@ from .black_scholes import bs_price, implied_vol, implied_vol_reason
 from .cir_law import TINY_VARIANCE, cir_stationary, cir_transition, cir_transition_shapes
 from .fourier import FourierDetails, heston_implied_vol, heston_price, heston_price_details
 from .fourier_check import FourierCheckError, lewis_call_price
+from .mc_schemes import SCHEMES
+from .monte_carlo import BLOCK, DEFAULT_SEED, MCResult, expected_negative_step_fraction, mc_price
 from .params import HestonParams
 from .report import DEFAULT_QUANTILES, variance_report
 from .validation import InputError
 from .variance import euler_max_step, euler_negative_probability, feller_ratio, regime_label
+from .verdict import (
+    BIASED,
+    CONSISTENT,
+    DEFAULT_TOLERANCE_BP,
+    UNDECIDED,
+    Comparison,
+    compare_mc_fourier,
+    step_study,
+)
 
 try:
     __version__ = version("rootvar")
@@ -21,19 +32,30 @@ except PackageNotFoundError:  # running from a source tree that is not installed
     __version__ = "0+unknown"
 
 __all__ = [
+    "BIASED",
+    "BLOCK",
+    "CONSISTENT",
     "DEFAULT_QUANTILES",
+    "DEFAULT_SEED",
+    "DEFAULT_TOLERANCE_BP",
+    "SCHEMES",
     "TINY_VARIANCE",
+    "UNDECIDED",
+    "Comparison",
     "FourierCheckError",
     "FourierDetails",
     "HestonParams",
     "InputError",
+    "MCResult",
     "__version__",
     "bs_price",
     "cir_stationary",
     "cir_transition",
     "cir_transition_shapes",
+    "compare_mc_fourier",
     "euler_max_step",
     "euler_negative_probability",
+    "expected_negative_step_fraction",
     "feller_ratio",
     "heston_implied_vol",
     "heston_price",
@@ -41,6 +63,8 @@ __all__ = [
     "implied_vol",
     "implied_vol_reason",
     "lewis_call_price",
+    "mc_price",
     "regime_label",
+    "step_study",
     "variance_report",
 ]

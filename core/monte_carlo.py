@@ -1,0 +1,384 @@
+"""Monte Carlo prices of European options under Heston, in bounded memory.
+
+Seeding scheme (what makes results depend only on inputs and seed):
+paths are cut into fixed blocks of :data:`BLOCK` paths; block ``j`` draws
+every random number it ever uses from its own generator
+``numpy.random.Generator(SFC64(SeedSequence(seed).spawn(n_blocks)[j]))``, in
+a fixed order (one variance draw per step, then the terminal log-price
+normal).  Chunks only decide how many blocks are vectorised together, and
+block sums are added in block order, so neither the chunk size nor the
+number of workers changes a single bit of the result.  SFC64 is numpy's
+fastest bit generator here (normal draws dominate the cost of a step) and
+passes the same statistical test batteries as the default PCG64.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.special import ndtr
+
+from .cir_law import cir_transition
+from .mc_schemes import SCHEMES, Accumulator
+from .params import HestonParams
+from .validation import InputError, as_float_array, as_positive_int, check_choice
+from .variance import euler_negative_probability
+
+__all__ = ["BLOCK", "DEFAULT_SEED", "MCResult", "expected_negative_step_fraction", "mc_price"]
+
+#: Paths per random-number block (the unit of reproducibility).
+BLOCK = 4096
+#: Seed used when none is given.
+DEFAULT_SEED = 20240601
+#: Two-sided 95% normal quantile for the confidence interval.
+Z95 = 1.959963984540054
+
+
+@dataclass(frozen=True)
+class MCResult:
+    """A Monte Carlo price with its statistics.
+
+    Arrays have one entry per strike; scalars when one strike was given.
+    """
+
+    price: np.ndarray | float
+    std_error: np.ndarray | float
+    ci_low: np.ndarray | float
+    ci_high: np.ndarray | float
+    strike: np.ndarray | float
+    kind: str
+    maturity: float
+    scheme: str
+    steps: int
+    paths: int
+    seed: int
+    antithetic: bool
+    conditional: bool
+    elapsed_s: float
+    negative_step_fraction: float
+    zero_touch_fraction: float
+    expected_negative_step_fraction: float
+    martingale_correction_failures: int = 0
+    notes: tuple = field(default_factory=tuple)
+
+
+class _Draws:
+    """Random numbers for a chunk of blocks, each block from its own stream.
+
+    ``normal`` and ``uniform`` fill reused buffers: a caller must be done
+    with one draw before asking for the next of the same kind.
+    """
+
+    def __init__(self, generators, sizes, antithetic):
+        self.gens, self.sizes, self.anti = generators, sizes, antithetic
+        self.n = int(sum(sizes))
+        self._normal = np.empty(self.n)
+        self._uniform = np.empty(self.n)
+
+    def normal(self):
+        out = self._normal
+        start = 0
+        for gen, size in zip(self.gens, self.sizes, strict=True):
+            if self.anti:
+                half = (size + 1) // 2
+                z = gen.standard_normal(half)
+                out[start : start + half] = z
+                out[start + half : start + size] = -z[: size - half]
+            else:
+                gen.standard_normal(out=out[start : start + size])
+            start += size
+        return out
+
+    def uniform(self):
+        out = self._uniform
+        start = 0
+        for gen, size in zip(self.gens, self.sizes, strict=True):
+            if self.anti:
+                half = (size + 1) // 2
+                u = gen.random(half)
+                out[start : start + half] = u
+                out[start + half : start + size] = 1.0 - u[: size - half]
+            else:
+                gen.random(out=out[start : start + size])
+            start += size
+        return out
+
+    def noncentral_chisquare(self, df, nonc):
+        out = np.empty(self.n)
+        start = 0
+        for gen, size in zip(self.gens, self.sizes, strict=True):
+            out[start : start + size] = gen.noncentral_chisquare(df, nonc[start : start + size])
+            start += size
+        return out
+
+
+def _conditional_prices(p, spot, strikes, t, rate, div, kind, int_var, mart, adj):
+    """Black-Scholes given the variance path (Willard 1997; Romano & Touzi 1997)."""
+    rho = p.rho
+    log_fwd = np.log(spot) + (rate - div) * t + adj + rho * mart - 0.5 * rho * rho * int_var
+    total = np.sqrt(np.maximum((1.0 - rho * rho) * int_var, 0.0))[:, None]
+    fwd = np.exp(log_fwd)[:, None]
+    k = strikes[None, :]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        d1 = (log_fwd[:, None] - np.log(k)) / total + 0.5 * total
+    d2 = d1 - total
+    sign = 1.0 if kind == "call" else -1.0
+    value = sign * (fwd * ndtr(sign * d1) - k * ndtr(sign * d2))
+    intrinsic = np.maximum(sign * (fwd - k), 0.0)
+    return np.exp(-rate * t) * np.where(total > 0, value, intrinsic)
+
+
+def _terminal_prices(p, spot, strikes, t, rate, div, kind, int_var, mart, adj, z):
+    rho = p.rho
+    log_s = (
+        np.log(spot)
+        + (rate - div) * t
+        + adj
+        - 0.5 * int_var
+        + rho * mart
+        + np.sqrt(np.maximum((1.0 - rho * rho) * int_var, 0.0)) * z
+    )
+    s_t = np.exp(log_s)[:, None]
+    sign = 1.0 if kind == "call" else -1.0
+    return np.exp(-rate * t) * np.maximum(sign * (s_t - strikes[None, :]), 0.0)
+
+
+def _probability_nodes(nodes: int = 64):
+    """Nodes and weights for ``int_0^1 g(u) du`` that resolve the lower tail.
+
+    Gauss-Legendre in ``ln u`` on ``[1e-12, 0.02]`` (the one-step probability
+    lives at small variances, i.e. small u, when it is rare) plus
+    Gauss-Legendre in ``u`` on ``[0.02, 1]``; the mass below 1e-12 is left out.
+    """
+    x, w = np.polynomial.legendre.leggauss(nodes)
+    lo, mid = np.log(1e-12), np.log(0.02)
+    s = 0.5 * (x + 1) * (mid - lo) + lo
+    u_low, w_low = np.exp(s), 0.5 * (mid - lo) * w * np.exp(s)
+    u_high, w_high = 0.5 * (x + 1) * (1 - 0.02) + 0.02, 0.5 * (1 - 0.02) * w
+    return np.concatenate([u_low, u_high]), np.concatenate([w_low, w_high])
+
+
+def expected_negative_step_fraction(
+    params: HestonParams, maturity: float, steps: int, times: int = 33
+) -> float:
+    """Analytic expectation of the Euler negative-step share on a grid.
+
+    The one-step probability :func:`euler_negative_probability` at step
+    ``dt = maturity / steps`` averaged over the exact law of the variance at
+    each grid time ``t_j = j dt``, ``j = 0 .. steps - 1``, then over the grid.
+
+    Notes
+    -----
+    ``E[p(v_t)] = int_0^1 p(F_t^{-1}(u)) du`` by Gauss-Legendre nodes that
+    resolve small ``u`` (see ``_probability_nodes``); the average over grid
+    times uses the trapezoid rule on at most ``times`` of them (it varies
+    smoothly in time), and ``t = 0`` is the exact ``p(v0)``.
+
+    It describes an Euler chain whose variance follows the exact law.  When
+    Feller holds the observed share matches it; when Feller fails the Euler
+    chain's own law near zero (on the scale ``vol_of_vol^2 dt`` where the
+    probability lives) stays different at every step size, and so does the
+    share: measured about 10% lower for absorption and reflection, and about
+    twice as high for the truncation schemes, whose negative states persist.
+    """
+    p = params
+    dt = maturity / steps
+    grid = dt * np.arange(steps)
+    sample = grid if steps <= times else np.linspace(grid[0], grid[-1], times)
+    u, w = _probability_nodes()
+    values = np.empty(sample.size)
+    for i, t in enumerate(sample):
+        if t == 0:
+            values[i] = euler_negative_probability(p.v0, p.kappa, p.theta, p.vol_of_vol, dt)
+            continue
+        v = cir_transition(p.v0, p.kappa, p.theta, p.vol_of_vol, t).ppf(u)
+        values[i] = np.dot(w, euler_negative_probability(v, p.kappa, p.theta, p.vol_of_vol, dt))
+    if sample.size == steps:
+        return float(values.mean())
+    return float(np.trapezoid(values, sample) / (sample[-1] - sample[0]))
+
+
+def mc_price(
+    params: HestonParams,
+    spot,
+    strike,
+    maturity,
+    rate=0.0,
+    div_yield=0.0,
+    kind: str = "call",
+    scheme: str = "qe",
+    steps: int = 64,
+    paths: int = 100_000,
+    seed: int = DEFAULT_SEED,
+    antithetic: bool = False,
+    conditional: bool = False,
+    chunk_paths: int = 4 * BLOCK,
+) -> MCResult:
+    """Monte Carlo price of European calls or puts under Heston.
+
+    Parameters
+    ----------
+    params : HestonParams
+    spot : float
+        Spot price, > 0.
+    strike : float or array_like
+        One strike or a strip, all priced on the same paths.
+    maturity : float
+        Years, > 0.
+    rate, div_yield : float
+        Continuous decimals.
+    kind : {"call", "put"}
+    scheme : str
+        A key of :data:`rootvar.core.mc_schemes.SCHEMES`: ``"euler_absorb"``,
+        ``"euler_reflect"``, ``"euler_partial"``, ``"euler_full"``, ``"qe"``,
+        ``"qe_martingale"``, ``"exact_variance"``.
+    steps : int
+        Time steps over the whole maturity (``dt = maturity / steps``).
+    paths : int
+        Number of paths (with ``antithetic``, pairs count as two paths).
+    seed : int
+        Seed of the numpy ``SeedSequence`` (see the module docstring).
+    antithetic : bool
+        Mirror every normal draw within each block (variance draws of
+        ``exact_variance`` cannot be mirrored; only its log-price normal is).
+        The standard error is then taken over pair averages.
+    conditional : bool
+        Price by Black-Scholes given the variance path instead of drawing
+        the log-price (Willard 1997): removes the log-price noise, keeps the
+        variance-discretisation bias.
+    chunk_paths : int
+        Paths vectorised together (a multiple of :data:`BLOCK` is used);
+        bounds memory and never changes the result.
+
+    Returns
+    -------
+    MCResult
+
+    Notes
+    -----
+    Each step moves the log-price by
+    ``(r - q) dt + adj - dI/2 + rho dM + sqrt((1 - rho^2) dI) Z`` with ``dI``
+    and ``dM`` from the scheme (see :mod:`rootvar.core.mc_schemes`); since
+    the ``Z`` are independent of the variance, their sum is drawn once at
+    maturity as ``sqrt((1 - rho^2) I) Z``, which has the same law.
+
+    References
+    ----------
+    Andersen, L. (2008). Simple and efficient simulation of the Heston
+    stochastic volatility model. J. Computational Finance 11(3), 1-42.
+    Broadie, M. & Kaya, Ö. (2006). Exact simulation of stochastic volatility
+    and other affine jump diffusion processes. Operations Research 54(2).
+    Lord, R., Koekkoek, R. & van Dijk, D. (2010). Quantitative Finance 10(2).
+    Willard, G. A. (1997). Calculating prices and sensitivities for
+    path-independent derivative securities in multifactor models. Journal of
+    Derivatives 5(1), 45-61.
+    Romano, M. & Touzi, N. (1997). Contingent claims and market completeness
+    in a stochastic volatility model. Mathematical Finance 7(4), 399-412.
+    """
+    if not isinstance(params, HestonParams):
+        raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
+    check_choice("kind", kind, ("call", "put"))
+    check_choice("scheme", scheme, tuple(SCHEMES))
+    steps = as_positive_int("steps", steps)
+    paths = as_positive_int("paths", paths)
+    chunk_paths = as_positive_int("chunk_paths", chunk_paths)
+    if isinstance(seed, (bool, np.bool_)) or not isinstance(seed, (int, np.integer)) or seed < 0:
+        raise InputError(f"seed must be a whole number >= 0, got {seed!r}")
+    spot = float(as_float_array("spot", spot, ">0"))
+    maturity = float(as_float_array("maturity", maturity, ">0"))
+    rate = float(as_float_array("rate", rate))
+    div_yield = float(as_float_array("div_yield", div_yield))
+    strike_in = as_float_array("strike", strike, ">0")
+    if strike_in.ndim > 1:
+        raise InputError(f"strike must be a number or a 1-d strip, got shape {strike_in.shape}")
+    strikes = np.atleast_1d(strike_in)
+    if antithetic and paths % 2:
+        raise InputError(f"paths must be even with antithetic=True, got {paths}")
+
+    started = time.perf_counter()
+    p, info = params, SCHEMES[scheme]
+    dt = maturity / steps
+    step = info.make(p, dt)
+    n_blocks = -(-paths // BLOCK)
+    sizes = [BLOCK] * (n_blocks - 1) + [paths - BLOCK * (n_blocks - 1)]
+    if antithetic and sizes[-1] % 2:
+        raise InputError("paths must leave an even last block with antithetic=True")
+    children = np.random.SeedSequence(int(seed)).spawn(n_blocks)
+    per_chunk = max(1, chunk_paths // BLOCK)
+
+    sums = np.zeros((n_blocks, strikes.size))
+    squares = np.zeros((n_blocks, strikes.size))
+    counts = np.zeros(n_blocks, dtype=np.int64)
+    negatives = touched_paths = adj_failed = 0
+    for first in range(0, n_blocks, per_chunk):
+        ids = range(first, min(first + per_chunk, n_blocks))
+        gens = [np.random.Generator(np.random.SFC64(children[j])) for j in ids]
+        block_sizes = [sizes[j] for j in ids]
+        draws = _Draws(gens, block_sizes, antithetic)
+        v = np.full(draws.n, p.v0)
+        acc = Accumulator(draws.n, p.v0)
+        for _ in range(steps):
+            v = step(v, draws, acc)
+        int_var, mart = info.finish(p, dt, steps, acc, v)
+        adj = acc.adj
+        negatives += acc.negative_updates
+        adj_failed += acc.adj_failed
+        touched_paths += int(np.count_nonzero(acc.touched))
+        if conditional:
+            values = _conditional_prices(
+                p, spot, strikes, maturity, rate, div_yield, kind, int_var, mart, adj
+            )
+        else:
+            z = draws.normal()
+            values = _terminal_prices(
+                p, spot, strikes, maturity, rate, div_yield, kind, int_var, mart, adj, z
+            )
+        start = 0
+        for j, size in zip(ids, block_sizes, strict=True):
+            block = values[start : start + size]
+            if antithetic:
+                half = size // 2
+                block = 0.5 * (block[:half] + block[half:])
+            sums[j] = block.sum(axis=0)
+            squares[j] = (block * block).sum(axis=0)
+            counts[j] = block.shape[0]
+            start += size
+
+    n = int(counts.sum())
+    mean = sums.sum(axis=0) / n
+    var = np.maximum(squares.sum(axis=0) / n - mean * mean, 0.0) * n / max(n - 1, 1)
+    se = np.sqrt(var / n)
+    one = strike_in.ndim == 0
+
+    def out(a):
+        return float(a[0]) if one else a
+
+    expected = expected_negative_step_fraction(p, maturity, steps) if info.euler else 0.0
+    notes = ()
+    if adj_failed:
+        notes = (
+            f"martingale correction unavailable on {adj_failed} path-steps (left uncorrected)",
+        )
+    return MCResult(
+        price=out(mean),
+        std_error=out(se),
+        ci_low=out(mean - Z95 * se),
+        ci_high=out(mean + Z95 * se),
+        strike=out(strikes),
+        kind=kind,
+        maturity=maturity,
+        scheme=scheme,
+        steps=steps,
+        paths=paths,
+        seed=int(seed),
+        antithetic=antithetic,
+        conditional=conditional,
+        elapsed_s=time.perf_counter() - started,
+        negative_step_fraction=negatives / (paths * steps) if info.euler else 0.0,
+        zero_touch_fraction=touched_paths / paths,
+        expected_negative_step_fraction=expected,
+        martingale_correction_failures=adj_failed,
+        notes=notes,
+    )

@@ -1,0 +1,326 @@
+"""Monte Carlo against Fourier: a three-state verdict and a step-size study."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from .black_scholes import implied_vol_reason
+from .fourier import heston_price
+from .mc_schemes import SCHEMES
+from .monte_carlo import DEFAULT_SEED, MCResult, mc_price
+from .validation import InputError, as_float_array, as_positive_int
+
+__all__ = [
+    "BIASED",
+    "CONSISTENT",
+    "DEFAULT_TOLERANCE_BP",
+    "UNDECIDED",
+    "Comparison",
+    "compare_mc_fourier",
+    "step_study",
+]
+
+CONSISTENT = "consistent"
+BIASED = "biased"
+UNDECIDED = "undecided"
+
+#: Default tolerance, implied-volatility basis points.  Five basis points is
+#: well inside a vanilla bid-ask spread (typically tens of bp) yet above what
+#: a few hundred thousand conditional paths resolve, so a failure means a
+#: real discretisation bias (common practice, no source).
+DEFAULT_TOLERANCE_BP = 5.0
+
+
+@dataclass(frozen=True)
+class Comparison:
+    """Fourier against Monte Carlo for one strike or a strip (arrays per strike).
+
+    Attributes
+    ----------
+    fourier_price, mc : the two prices (``mc`` is the full :class:`MCResult`)
+    diff_price : MC minus Fourier, currency units
+    diff_vol_bp : the same difference in implied-volatility basis points
+    z_score : ``diff_price / std_error``
+    tolerance_price : the tolerance used, in price (converted from bp by vega)
+    verdict : "consistent", "biased" or "undecided" per strike
+    paths_to_settle : paths that would turn an "undecided" into a decision
+        (0 where decided; -1 where no number of paths can, the difference
+        sitting exactly on the tolerance)
+    reason : plain words per strike
+    """
+
+    fourier_price: np.ndarray | float
+    mc: MCResult
+    diff_price: np.ndarray | float
+    diff_vol_bp: np.ndarray | float
+    z_score: np.ndarray | float
+    tolerance_price: np.ndarray | float
+    tolerance_bp: float | None
+    z: float
+    verdict: np.ndarray | str
+    paths_to_settle: np.ndarray | int
+    reason: np.ndarray | str
+
+
+def _vega(spot, strike, t, rate, div, vol):
+    """Black-Scholes vega (per unit of volatility)."""
+    from scipy.stats import norm
+
+    fwd = spot * np.exp((rate - div) * t)
+    s = vol * np.sqrt(t)
+    d1 = np.log(fwd / strike) / s + 0.5 * s
+    return np.exp(-rate * t) * fwd * norm.pdf(d1) * np.sqrt(t)
+
+
+def compare_mc_fourier(
+    params,
+    spot,
+    strike,
+    maturity,
+    rate=0.0,
+    div_yield=0.0,
+    kind="call",
+    scheme="qe",
+    steps=64,
+    paths=100_000,
+    seed=DEFAULT_SEED,
+    antithetic=False,
+    conditional=True,
+    tolerance_bp=DEFAULT_TOLERANCE_BP,
+    tolerance_price=None,
+    z=3.0,
+    mc_result: MCResult | None = None,
+) -> Comparison:
+    """Price by Fourier and Monte Carlo and decide whether they agree.
+
+    Parameters
+    ----------
+    params, spot, strike, maturity, rate, div_yield, kind
+        As in :func:`rootvar.core.mc_price` (a strike strip is allowed).
+    scheme, steps, paths, seed, antithetic, conditional
+        Monte Carlo settings.  Conditioning is on by default: it isolates
+        the variance-discretisation bias, which is what the check is about.
+    tolerance_bp : float
+        Tolerance in implied-volatility basis points, > 0 (default 5 bp).
+    tolerance_price : float, optional
+        Tolerance in price instead (currency units, > 0); overrides
+        ``tolerance_bp``.
+    z : float
+        Width of the confidence band in standard errors, > 0 (default 3).
+    mc_result : MCResult, optional
+        Reuse a finished Monte Carlo run instead of simulating.
+
+    Returns
+    -------
+    Comparison
+
+    Notes
+    -----
+    With ``d = MC - Fourier`` and ``s`` its standard error (Fourier error is
+    negligible, certified below 1e-8 x spot): "consistent" when
+    ``[d - z s, d + z s]`` lies inside ``[-tol, tol]``; "biased" when it lies
+    wholly outside; otherwise "undecided", and
+    ``paths x (z s / | |d| - tol |)^2`` paths would settle it (the standard
+    error falls like ``1 / sqrt(paths)``).  The basis-point tolerance is
+    turned into price with the Black-Scholes vega at the Fourier implied
+    volatility.
+    """
+    z = float(as_float_array("z", z, ">0"))
+    if tolerance_price is not None:
+        tol_price_in = float(as_float_array("tolerance_price", tolerance_price, ">0"))
+        tolerance_bp = None
+    else:
+        tolerance_bp = float(as_float_array("tolerance_bp", tolerance_bp, ">0"))
+    mc = mc_result or mc_price(
+        params,
+        spot,
+        strike,
+        maturity,
+        rate,
+        div_yield,
+        kind,
+        scheme,
+        steps,
+        paths,
+        seed,
+        antithetic,
+        conditional,
+    )
+    strikes = np.atleast_1d(np.asarray(mc.strike, dtype=float))
+    t = mc.maturity
+    fourier = np.atleast_1d(heston_price(params, spot, strikes, t, rate, div_yield, kind))
+    mc_p = np.atleast_1d(mc.price)
+    se = np.atleast_1d(mc.std_error)
+    iv_f, _ = implied_vol_reason(fourier, spot, strikes, t, rate, div_yield, kind)
+    iv_m, _ = implied_vol_reason(mc_p, spot, strikes, t, rate, div_yield, kind)
+    vega = _vega(spot, strikes, t, rate, div_yield, iv_f)
+    diff = mc_p - fourier
+    with np.errstate(divide="ignore", invalid="ignore"):
+        diff_bp = np.where(
+            np.isfinite(iv_m) & np.isfinite(iv_f), (iv_m - iv_f) * 1e4, diff / vega * 1e4
+        )
+        zscore = np.where(se > 0, diff / se, np.sign(diff) * np.inf)
+    if tolerance_bp is None:
+        tol = np.full(strikes.shape, tol_price_in)
+    else:
+        tol = tolerance_bp * 1e-4 * vega
+    lo, hi = diff - z * se, diff + z * se
+    inside = (lo >= -tol) & (hi <= tol)
+    outside = (lo > tol) | (hi < -tol)
+    verdict = np.where(inside, CONSISTENT, np.where(outside, BIASED, UNDECIDED)).astype(object)
+    gap = np.abs(np.abs(diff) - tol)
+    settle = np.zeros(strikes.shape, dtype=np.int64)
+    reason = np.empty(strikes.shape, dtype=object)
+    for i in range(strikes.size):
+        unit = "bp of vol" if tolerance_bp is not None else "in price"
+        band = f"{diff[i]:+.6g} +- {z:g} x {se[i]:.3g}"
+        if verdict[i] == CONSISTENT:
+            reason[i] = f"MC - Fourier = {band} lies within the tolerance ({unit})"
+        elif verdict[i] == BIASED:
+            reason[i] = f"MC - Fourier = {band} lies wholly outside the tolerance ({unit})"
+        elif not np.isfinite(tol[i]) or tol[i] <= 0:
+            settle[i] = -1
+            verdict[i] = UNDECIDED
+            reason[i] = "no vega at this strike: the basis-point tolerance has no price meaning"
+        elif gap[i] == 0:
+            settle[i] = -1
+            reason[i] = "the difference sits exactly on the tolerance; more paths cannot settle it"
+        else:
+            settle[i] = math.ceil(mc.paths * (z * se[i] / gap[i]) ** 2)
+            reason[i] = (
+                f"MC - Fourier = {band} straddles the tolerance; about {settle[i]:,} "
+                "paths would settle it"
+            )
+    one = np.ndim(mc.strike) == 0
+
+    def out(a):
+        return a[0] if one else a
+
+    return Comparison(
+        fourier_price=out(fourier),
+        mc=mc,
+        diff_price=out(diff),
+        diff_vol_bp=out(diff_bp),
+        z_score=out(zscore),
+        tolerance_price=out(tol),
+        tolerance_bp=tolerance_bp,
+        z=z,
+        verdict=out(verdict.astype(str)),
+        paths_to_settle=out(settle),
+        reason=out(reason.astype(str)),
+    )
+
+
+def step_study(
+    params,
+    spot,
+    strike,
+    maturity,
+    rate=0.0,
+    div_yield=0.0,
+    kind="call",
+    schemes=("euler_full", "qe", "exact_variance"),
+    steps_grid=(1, 2, 4, 8, 16, 32),
+    paths=50_000,
+    seed=DEFAULT_SEED,
+    conditional=True,
+    tolerance_bp=DEFAULT_TOLERANCE_BP,
+    z=3.0,
+) -> pd.DataFrame:
+    """Bias of each scheme against Fourier over a grid of step counts.
+
+    Parameters
+    ----------
+    params, spot, strike, maturity, rate, div_yield, kind
+        One vanilla (a single strike).
+    schemes : sequence of str
+        Scheme keys (see :func:`rootvar.core.mc_price`).
+    steps_grid : sequence of int
+        Time steps over the whole maturity.
+    paths, seed, conditional, tolerance_bp, z
+        As in :func:`compare_mc_fourier`; every cell uses the same seed.
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per (scheme, steps): ``scheme``, ``steps``, ``dt``,
+        ``price``, ``std_error``, ``bias_price``, ``bias_vol_bp``, ``z_score``,
+        ``verdict``, ``seconds``.  ``attrs["coarsest_consistent"]`` maps each
+        scheme to the fewest steps with a "consistent" verdict (None if
+        none), ``attrs["cheapest"]`` names the consistent cell with the
+        smallest run time, and ``attrs["fourier_price"]`` the yardstick.
+    """
+    if np.ndim(strike) != 0:
+        raise InputError(f"strike must be a single number for a step study, got {strike!r}")
+    if isinstance(schemes, str) or not len(schemes):
+        raise InputError(f"schemes must be a non-empty list of scheme names, got {schemes!r}")
+    for s in schemes:
+        if s not in SCHEMES:
+            raise InputError(f"schemes must be drawn from {sorted(SCHEMES)}, got {s!r}")
+    grid = [as_positive_int("steps_grid", n) for n in steps_grid]
+    if not grid:
+        raise InputError("steps_grid must hold at least one step count, got an empty list")
+    rows = []
+    for s in schemes:
+        for n in grid:
+            cmp_ = compare_mc_fourier(
+                params,
+                spot,
+                strike,
+                maturity,
+                rate,
+                div_yield,
+                kind,
+                s,
+                n,
+                paths,
+                seed,
+                False,
+                conditional,
+                tolerance_bp,
+                None,
+                z,
+            )
+            rows.append(
+                {
+                    "scheme": s,
+                    "steps": n,
+                    "dt": float(maturity) / n,
+                    "price": cmp_.mc.price,
+                    "std_error": cmp_.mc.std_error,
+                    "bias_price": cmp_.diff_price,
+                    "bias_vol_bp": cmp_.diff_vol_bp,
+                    "z_score": cmp_.z_score,
+                    "verdict": cmp_.verdict,
+                    "seconds": cmp_.mc.elapsed_s,
+                }
+            )
+            fourier = cmp_.fourier_price
+    table = pd.DataFrame(rows)
+    good = table[table["verdict"] == CONSISTENT]
+    coarsest = {
+        s: (int(good[good["scheme"] == s]["steps"].min()) if (good["scheme"] == s).any() else None)
+        for s in schemes
+    }
+    cheapest = None
+    if len(good):
+        best = good.loc[good["seconds"].idxmin()]
+        cheapest = {
+            "scheme": best["scheme"],
+            "steps": int(best["steps"]),
+            "seconds": float(best["seconds"]),
+        }
+    table.attrs.update(
+        coarsest_consistent=coarsest,
+        cheapest=cheapest,
+        fourier_price=fourier,
+        tolerance_bp=tolerance_bp,
+        z=z,
+        paths=paths,
+        seed=seed,
+    )
+    return table
