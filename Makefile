@@ -5,7 +5,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test lint bench clean
+.PHONY: demo test lint bench docs workbooks clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -26,5 +26,11 @@ test: lint
 bench: $(STAMP)
 	$(BIN)/python -m benchmarks
 
+docs: $(STAMP)
+	$(BIN)/python -m rootvar.addin.reference README.md
+
+workbooks: $(STAMP)
+	$(BIN)/rootvar build-workbooks --dir workbooks
+
 clean:
-	rm -rf $(VENV) .pytest_cache .ruff_cache .hypothesis
+	rm -rf $(VENV) .pytest_cache .ruff_cache .hypothesis out

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import sys
+from pathlib import Path
 
 import pandas as pd
 
@@ -16,12 +17,8 @@ from rootvar.core import (
     variance_report,
 )
 
+from .cli_text import CAUTION
 from .demo_desk import DESK_NAME, demo_models
-
-CAUTION = (
-    "Caution: rootvar outputs support, and do not replace, independent model validation "
-    "under your own model-risk policy."
-)
 
 
 def _floats(text: str) -> list[float]:
@@ -58,13 +55,51 @@ def _cmd_report(args) -> int:
 
 
 def _cmd_demo(args) -> int:
+    from .engine import compute_workbook
+    from .workbook_build import PARAMETER_CHECK, PRICE_TWICE, build_all
+
     print(f"rootvar {__version__} - {DESK_NAME} (invented demo data)\n")
     for model in demo_models():
         print(f"{model.model_id}  {model.underlying}  spot {model.spot:g}")
         _print_report(model.params, args.horizons, args.dt, args.tolerance, sys.stdout)
         print()
+    out = Path(args.out)
+    build_all(out)
+    print(f"Workbooks built in {out.resolve()}:")
+    for name in (PARAMETER_CHECK, PRICE_TWICE):
+        report = compute_workbook(out / name)
+        status = (
+            "no cell errors" if not report.error_cells else f"{len(report.error_cells)} cell errors"
+        )
+        print(
+            f"  {name}: {report.formulas} formulas computed headlessly ({status}) -> "
+            f"{report.output.name}"
+        )
+    print()
     print(CAUTION)
     return 0
+
+
+def _cmd_build(args) -> int:
+    from .workbook_build import build_all
+
+    for path in build_all(Path(args.dir)):
+        print(path)
+    return 0
+
+
+def _cmd_compute(args) -> int:
+    from .engine import FormulaError, compute_workbook
+
+    try:
+        report = compute_workbook(args.workbook, args.out)
+    except (FormulaError, OSError, KeyError, ValueError) as exc:
+        print(f"rootvar compute: {exc}", file=sys.stderr)
+        return 2
+    print(f"{report.formulas} formulas computed in {report.passes} passes -> {report.output}")
+    for cell, text in report.error_cells:
+        print(f"  {cell}: {text}")
+    return 3 if report.error_cells else 0
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -99,8 +134,25 @@ def build_parser() -> argparse.ArgumentParser:
         report.add_argument(f"--{name}", type=float, required=True)
     report.set_defaults(func=_cmd_report)
 
-    demo = sub.add_parser("demo", parents=[common], help="report on the invented demo desk")
+    demo = sub.add_parser(
+        "demo", parents=[common], help="report on the invented demo desk and build its workbooks"
+    )
+    demo.add_argument("--out", default="out", help="folder for the demo workbooks (default out)")
     demo.set_defaults(func=_cmd_demo)
+
+    build = sub.add_parser("build-workbooks", help="build the shipped workbook templates")
+    build.add_argument("--dir", default="workbooks", help="target folder (default workbooks)")
+    build.set_defaults(func=_cmd_build)
+
+    compute = sub.add_parser(
+        "compute",
+        help="compute a workbook's formulas headlessly and save a copy with values",
+        description="Exit codes: 0 computed, 3 computed but some cells hold errors, "
+        "2 the workbook could not be computed (nothing written).",
+    )
+    compute.add_argument("workbook")
+    compute.add_argument("--out", help="computed copy (default <name>.computed.xlsx beside it)")
+    compute.set_defaults(func=_cmd_compute)
     return parser
 
 

@@ -230,6 +230,7 @@ def step_study(
     conditional=True,
     tolerance_bp=DEFAULT_TOLERANCE_BP,
     z=3.0,
+    antithetic=False,
 ) -> pd.DataFrame:
     """Bias of each scheme against Fourier over a grid of step counts.
 
@@ -241,7 +242,7 @@ def step_study(
         Scheme keys (see :func:`rootvar.core.mc_price`).
     steps_grid : sequence of int
         Time steps over the whole maturity.
-    paths, seed, conditional, tolerance_bp, z
+    paths, seed, conditional, tolerance_bp, z, antithetic
         As in :func:`compare_mc_fourier`; every cell uses the same seed.
 
     Returns

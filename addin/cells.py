@@ -1,0 +1,252 @@
+"""Converting and checking spreadsheet cell values, in one place.
+
+xlwings hands a function floats, ``None`` for empty cells, strings, booleans,
+datetimes and lists (of lists) for ranges; an error value in a cell arrives
+as ``None`` or as its text (``"#N/A"``).  Every spreadsheet function turns its
+arguments into Python values through the converters here, which raise
+:class:`CellError` with a message naming the argument and the rule; the
+function then shows it as one short text with :data:`MARK` in front.
+"""
+
+from __future__ import annotations
+
+import math
+import numbers
+import re
+
+import numpy as np
+
+from rootvar.core import HestonParams, InputError
+
+__all__ = [
+    "MARK",
+    "PARAM_ORDER",
+    "CellError",
+    "error_text",
+    "to_bool",
+    "to_choice",
+    "to_int",
+    "to_number",
+    "to_numbers",
+    "to_params",
+    "to_text_list",
+]
+
+#: Start of every error text a rootvar cell function returns.
+MARK = "[rootvar] "
+
+#: Order of the five parameters when they are given as five bare cells.
+PARAM_ORDER = ("v0", "kappa", "theta", "vol_of_vol", "rho")
+
+# Labels accepted in a two-column parameter block, after lower-casing and
+# dropping spaces, underscores, hyphens and dots.
+_ALIASES = {
+    "v0": "v0",
+    "initialvariance": "v0",
+    "variance0": "v0",
+    "spotvariance": "v0",
+    "kappa": "kappa",
+    "meanreversion": "kappa",
+    "meanreversionspeed": "kappa",
+    "theta": "theta",
+    "longrunvariance": "theta",
+    "longtermvariance": "theta",
+    "volofvol": "vol_of_vol",
+    "volvol": "vol_of_vol",
+    "sigma": "vol_of_vol",
+    "xi": "vol_of_vol",
+    "eta": "vol_of_vol",
+    "volatilityofvariance": "vol_of_vol",
+    "volatilityofvolatility": "vol_of_vol",
+    "rho": "rho",
+    "correlation": "rho",
+    "corr": "rho",
+}
+
+
+class CellError(ValueError):
+    """A cell argument broke its rule; the message is shown in the cell."""
+
+
+def error_text(message: str) -> str:
+    """The text a cell shows for an error, one line, with the rootvar mark."""
+    return MARK + " ".join(str(message).split())
+
+
+def _describe(value) -> str:
+    if value is None:
+        return "an empty cell"
+    if isinstance(value, bool):
+        return f"the logical value {str(value).upper()}"
+    if isinstance(value, str):
+        if value.startswith("#"):
+            return f"the error value {value}"
+        return f"the text {value!r}"
+    if isinstance(value, (list, tuple)):
+        return "a range"
+    return repr(value)
+
+
+def _flat(value) -> list:
+    """Cells of a scalar, row, column or block, row by row."""
+    if isinstance(value, np.ndarray):
+        return list(value.ravel())
+    if isinstance(value, (list, tuple)):
+        out = []
+        for item in value:
+            out.extend(_flat(item) if isinstance(item, (list, tuple)) else [item])
+        return out
+    return [value]
+
+
+def _is_number(value) -> bool:
+    return isinstance(value, numbers.Real) and not isinstance(value, bool)
+
+
+def to_number(name: str, value, *rules: str, default=None) -> float:
+    """One number; ``default`` stands in for an empty cell when given."""
+    if isinstance(value, (list, tuple)):
+        cells = _flat(value)
+        if len(cells) != 1:
+            raise CellError(f"{name} must be a single cell, got a range of {len(cells)} cells")
+        value = cells[0]
+    if value is None and default is not None:
+        value = default
+    if not _is_number(value):
+        raise CellError(f"{name} must be a number, got {_describe(value)}")
+    try:
+        from rootvar.core.validation import as_float_array
+
+        return float(as_float_array(name, float(value), *rules))
+    except InputError as exc:
+        raise CellError(str(exc)) from exc
+
+
+def to_numbers(name: str, value, *rules: str) -> np.ndarray:
+    """A strip of numbers from a cell or range; blank cells are skipped."""
+    cells = [
+        c for c in _flat(value) if c is not None and not (isinstance(c, str) and not c.strip())
+    ]
+    if not cells:
+        raise CellError(f"{name} must hold at least one number, got only empty cells")
+    for c in cells:
+        if not _is_number(c):
+            raise CellError(f"{name} must hold numbers only, got {_describe(c)}")
+    return np.array([to_number(name, c, *rules) for c in cells])
+
+
+def to_int(name: str, value, default: int, low: int = 1, high: int | None = None) -> int:
+    """A whole number in ``[low, high]``; empty gives ``default``."""
+    number = to_number(name, value, default=default)
+    if number != math.floor(number):
+        raise CellError(f"{name} must be a whole number, got {number!r}")
+    if number < low or (high is not None and number > high):
+        upper = f" and <= {high:,}" if high is not None else ""
+        raise CellError(f"{name} must be >= {low}{upper}, got {int(number)}")
+    return int(number)
+
+
+def to_bool(name: str, value, default: bool) -> bool:
+    """TRUE/FALSE, 1/0 or the texts true/false/yes/no; empty gives ``default``."""
+    if isinstance(value, (list, tuple)):
+        value = (_flat(value) or [None])[0]
+    if value is None:
+        return default
+    if isinstance(value, bool):
+        return value
+    if _is_number(value) and value in (0, 1):
+        return bool(value)
+    if isinstance(value, str) and value.strip().lower() in ("true", "false", "yes", "no"):
+        return value.strip().lower() in ("true", "yes")
+    raise CellError(f"{name} must be TRUE or FALSE, got {_describe(value)}")
+
+
+def to_choice(name: str, value, choices, default: str) -> str:
+    """One of ``choices`` (text, case and spaces ignored); empty gives ``default``."""
+    if isinstance(value, (list, tuple)):
+        value = (_flat(value) or [None])[0]
+    if value is None or (isinstance(value, str) and not value.strip()):
+        return default
+    if isinstance(value, str):
+        key = value.strip().lower().replace(" ", "_").replace("-", "_")
+        if key in choices:
+            return key
+    listed = ", ".join(choices)
+    raise CellError(f"{name} must be one of {listed}, got {_describe(value)}")
+
+
+def to_text_list(name: str, value, choices, default) -> list[str]:
+    """Several choices from one comma-separated text or a range of texts."""
+    cells = [c for c in _flat(value) if c is not None]
+    if not cells:
+        return list(default)
+    items = []
+    for c in cells:
+        if not isinstance(c, str):
+            raise CellError(f"{name} must hold names, got {_describe(c)}")
+        items.extend(part for part in re.split(r"[,;]", c) if part.strip())
+    return [to_choice(name, item, choices, default=item) for item in items]
+
+
+def _label_key(label: str) -> str:
+    return re.sub(r"[\s_\-.]", "", label.lower())
+
+
+def to_params(name: str, value) -> HestonParams:
+    """Heston parameters from a label/value block or from five cells.
+
+    Accepted shapes:
+
+    * two columns, labels left and values right, in any order, labels
+      matched without regard to case, spaces, underscores, hyphens or dots,
+      with the usual aliases (``sigma``, ``xi``, ``eta``, ``vol of vol`` for
+      vol_of_vol; ``correlation`` for rho; ``mean reversion`` for kappa;
+      ``long run variance`` for theta; ``initial variance`` for v0);
+      blank rows are skipped;
+    * five numbers in a row or column in the order v0, kappa, theta,
+      vol_of_vol, rho.
+    """
+    if not isinstance(value, (list, tuple)):
+        raise CellError(
+            f"{name} must be a range of five cells or a two-column label/value "
+            f"block, got {_describe(value)}"
+        )
+    rows = [list(r) if isinstance(r, (list, tuple)) else [r] for r in value]
+    if rows and all(len(r) == 2 for r in rows) and any(isinstance(r[0], str) for r in rows):
+        found: dict[str, object] = {}
+        for label, val in rows:
+            if label is None and val is None:
+                continue
+            if not isinstance(label, str):
+                raise CellError(
+                    f"{name}: each row needs a label on the left, got {_describe(label)}"
+                )
+            key = _ALIASES.get(_label_key(label))
+            if key is None:
+                raise CellError(
+                    f"{name}: unknown label {label!r}; expected v0, kappa, theta, "
+                    "vol_of_vol (or sigma), rho"
+                )
+            if key in found:
+                raise CellError(f"{name}: {key} is given twice")
+            found[key] = val
+        missing = [k for k in PARAM_ORDER if k not in found]
+        if missing:
+            raise CellError(f"{name}: missing {', '.join(missing)}")
+        values = [found[k] for k in PARAM_ORDER]
+    else:
+        values = _flat(value)
+        if len(values) != 5:
+            raise CellError(
+                f"{name} must be five cells (v0, kappa, theta, vol_of_vol, rho) or a "
+                f"two-column label/value block, got {len(values)} cells"
+            )
+    numbers_ = {}
+    for key, val in zip(PARAM_ORDER, values, strict=True):
+        if not _is_number(val):
+            raise CellError(f"{name}: {key} must be a number, got {_describe(val)}")
+        numbers_[key] = float(val)
+    try:
+        return HestonParams(**numbers_)
+    except InputError as exc:
+        raise CellError(f"{name}: {exc}") from exc

@@ -1,0 +1,555 @@
+"""Spreadsheet functions: thin wrappers over ``rootvar.core``, one per idea.
+
+Each function converts its arguments through :mod:`rootvar.addin.cells` and
+returns a number, a text, a column, or a table with a header row (which
+spills in the spreadsheet).  It never raises into the host: any problem
+comes back as one short text starting with ``[rootvar]``.
+
+Under Windows with the xlwings add-in these are user-defined functions; the
+same Python functions are what the headless engine (:mod:`rootvar.addin.engine`)
+calls, so a workbook computes the same numbers with or without Excel.
+
+Monte Carlo functions are deterministic (``seed`` defaults to
+:data:`rootvar.core.DEFAULT_SEED`), keep their default work near a second
+(``paths`` 20,000, ``steps`` 32; the step study 10,000 paths per cell of its
+grid), refuse more than :data:`MAX_PATH_STEPS` path-steps in one call, and
+serve repeated identical calls from an in-process cache.
+"""
+
+from __future__ import annotations
+
+import functools
+import math
+import traceback
+from dataclasses import dataclass
+
+import numpy as np
+import xlwings as xw
+
+from rootvar.core import (
+    DEFAULT_SEED,
+    DEFAULT_TOLERANCE_BP,
+    SCHEMES,
+    HestonParams,
+    __version__,
+    cir_transition,
+    compare_mc_fourier,
+    euler_max_step,
+    euler_negative_probability,
+    feller_ratio,
+    heston_implied_vol,
+    heston_price,
+    implied_vol_reason,
+    mc_price,
+    step_study,
+    variance_report,
+)
+
+from .cells import (
+    CellError,
+    error_text,
+    to_bool,
+    to_choice,
+    to_int,
+    to_number,
+    to_numbers,
+    to_params,
+    to_text_list,
+)
+
+__all__ = ["MAX_PATH_STEPS", "REGISTRY", "SheetFunction"]
+
+#: Most path-steps one cell may ask for; bigger runs belong in an
+#: asynchronous function or the headless engine.
+MAX_PATH_STEPS = 50_000_000
+KINDS = ("call", "put")
+SCHEME_NAMES = tuple(SCHEMES)
+
+
+@dataclass(frozen=True)
+class SheetFunction:
+    """A registered spreadsheet function and the documentation shown for it."""
+
+    name: str
+    func: object
+    summary: str
+    args: tuple  # (name, doc) pairs
+    result: str
+
+
+REGISTRY: dict[str, SheetFunction] = {}
+
+PARAMS_DOC = (
+    "Heston parameters: a two-column label/value block (v0, kappa, theta, "
+    "vol_of_vol, rho) or five cells in that order"
+)
+
+
+def sheet_function(result: str, **arg_docs: str):
+    """Register a spreadsheet function, guard it, and declare it to xlwings.
+
+    The guard turns any exception into an error text, so the host never
+    sees one; the xlwings decorators carry the argument docs to the
+    function wizard.
+    """
+
+    def decorate(f):
+        @functools.wraps(f)
+        def guarded(*args):
+            try:
+                return f(*args)
+            except CellError as exc:
+                return error_text(str(exc))
+            except Exception as exc:
+                last = traceback.extract_tb(exc.__traceback__)[-1]
+                return error_text(f"{type(exc).__name__}: {exc} (at {last.name})")
+
+        wrapped = guarded
+        for arg, doc in reversed(list(arg_docs.items())):
+            wrapped = xw.arg(arg, doc=doc)(wrapped)
+        wrapped = xw.func(wrapped)
+        summary = (f.__doc__ or "").strip().splitlines()[0]
+        REGISTRY[f.__name__] = SheetFunction(
+            f.__name__, wrapped, summary, tuple(arg_docs.items()), result
+        )
+        return wrapped
+
+    return decorate
+
+
+def _column(values) -> list[list]:
+    return [[float(v)] for v in np.ravel(values)]
+
+
+def _one_or_column(values, single: bool):
+    return float(np.ravel(values)[0]) if single else _column(values)
+
+
+def _finite(value):
+    """Spreadsheets have no NaN or infinity: show them as empty text."""
+    if isinstance(value, (float, np.floating)) and not math.isfinite(value):
+        return ""
+    if isinstance(value, np.generic):
+        return value.item()
+    return value
+
+
+def _header(column: str) -> str:
+    """Plain words for a core column name."""
+    fixed = {
+        "horizon_years": "horizon (years)",
+        "std": "std dev",
+        "p_below_near_zero": "P(variance < near-zero level)",
+        "euler_neg_prob_at_v0": "Euler negative-step prob. at v0",
+        "notes": "notes",
+        "dt": "dt (years)",
+        "std_error": "std error",
+        "bias_price": "bias",
+        "bias_vol_bp": "bias (vol bp)",
+        "z_score": "z-score",
+    }
+    if column in fixed:
+        return fixed[column]
+    if column.startswith("euler_neg_prob_at_q"):
+        return f"Euler negative-step prob. at {column.removeprefix('euler_neg_prob_at_')}"
+    return column.replace("_", " ")
+
+
+def _table(frame, index_name=None) -> list[list]:
+    """A pandas DataFrame as a header row of plain words plus data rows."""
+    frame = frame.reset_index() if index_name else frame
+    rows = [[_header(str(c)) for c in frame.columns]]
+    rows += [[_finite(v) for v in row] for row in frame.itertuples(index=False)]
+    return rows
+
+
+def _pairs(rows) -> list[list]:
+    """Label / value rows with plain Python values."""
+    return [[label, _finite(value)] for label, value in rows]
+
+
+def _market(spot, strike, maturity, rate, div_yield, kind):
+    return (
+        to_number("spot", spot, ">0"),
+        to_numbers("strike", strike, ">0"),
+        to_number("maturity", maturity, ">0"),
+        to_number("rate", rate, default=0.0),
+        to_number("div_yield", div_yield, default=0.0),
+        to_choice("kind", kind, KINDS, "call"),
+    )
+
+
+def _single_strike(strikes) -> float:
+    if strikes.size != 1:
+        raise CellError(f"strike must be a single cell here, got {strikes.size} strikes")
+    return float(strikes[0])
+
+
+def _check_work(paths: int, steps: int, cells: int = 1) -> None:
+    if paths * steps * cells > MAX_PATH_STEPS:
+        raise CellError(
+            f"paths x steps = {paths * steps * cells:,} exceeds {MAX_PATH_STEPS:,} for one cell; "
+            "run it asynchronously or headless (rootvar compute)"
+        )
+
+
+# --------------------------------------------------------------------------- functions
+
+
+@sheet_function("text: the installed rootvar version")
+def ROOTVAR_VERSION():
+    """Version of the rootvar library behind these functions."""
+    return f"rootvar {__version__}"
+
+
+@sheet_function("number: 2 kappa theta / vol_of_vol^2", params=PARAMS_DOC)
+def ROOTVAR_FELLER(params):
+    """Feller ratio of the parameter set (the condition holds at 1 and above)."""
+    p = to_params("params", params)
+    return feller_ratio(p.kappa, p.theta, p.vol_of_vol)
+
+
+@sheet_function(
+    "number: probability in [0, 1]",
+    params=PARAMS_DOC,
+    dt="Euler step in years, > 0 (1/252 is one trading day)",
+    variance="variance at the start of the step (empty: v0 of the parameters), >= 0",
+)
+def ROOTVAR_EULER_NEG_PROB(params, dt, variance=None):
+    """Chance that one Euler step of the variance comes out negative."""
+    p = to_params("params", params)
+    step = to_number("dt", dt, ">0")
+    v = to_number("variance", variance, ">=0", default=p.v0)
+    return euler_negative_probability(v, p.kappa, p.theta, p.vol_of_vol, step)
+
+
+@sheet_function(
+    "number: years, or the text 'unbounded' when no step breaches the tolerance",
+    params=PARAMS_DOC,
+    tolerance="acceptable one-step negative probability, in (0, 1)",
+    variance="variance at the start of the step (empty: v0 of the parameters), >= 0",
+)
+def ROOTVAR_EULER_SAFE_STEP(params, tolerance, variance=None):
+    """Largest Euler step keeping the negative-step chance within the tolerance."""
+    p = to_params("params", params)
+    tol = to_number("tolerance", tolerance, "(0,1)")
+    v = to_number("variance", variance, ">=0", default=p.v0)
+    step = euler_max_step(v, p.kappa, p.theta, p.vol_of_vol, tol)
+    return "unbounded" if math.isinf(step) else step
+
+
+@sheet_function(
+    "number: annualised variance (0 where it underflows a double)",
+    params=PARAMS_DOC,
+    horizon="horizon in years, > 0",
+    probability="level in (0, 1)",
+)
+def ROOTVAR_VAR_QUANTILE(params, horizon, probability):
+    """Quantile of the exact law of the variance at a horizon."""
+    p = to_params("params", params)
+    t = to_number("horizon", horizon, ">0")
+    q = to_number("probability", probability, "(0,1)")
+    return float(cir_transition(p.v0, p.kappa, p.theta, p.vol_of_vol, t).ppf(q))
+
+
+@sheet_function(
+    "number: probability in [0, 1]",
+    params=PARAMS_DOC,
+    horizon="horizon in years, > 0",
+    level="variance level, >= 0",
+)
+def ROOTVAR_VAR_CDF(params, horizon, level):
+    """Probability that the variance is at or below a level at a horizon (exact law)."""
+    p = to_params("params", params)
+    t = to_number("horizon", horizon, ">0")
+    x = to_number("level", level, ">=0")
+    return float(cir_transition(p.v0, p.kappa, p.theta, p.vol_of_vol, t).cdf(x))
+
+
+@sheet_function(
+    "table: header row, then one row per horizon",
+    params=PARAMS_DOC,
+    horizons="range of horizons in years, > 0",
+    probabilities="range of quantile levels in (0, 1) (empty: 0.1% to 99%, eight levels)",
+    dt="production Euler step in years (empty: 1/252)",
+    near_zero="variance level counted as near zero (empty: 1e-4)",
+)
+def ROOTVAR_VAR_TABLE(params, horizons, probabilities=None, dt=None, near_zero=None):
+    """Exact-law table of the variance: mean, spread, quantiles, mass near zero, Euler risk."""
+    from rootvar.core import DEFAULT_QUANTILES
+
+    p = to_params("params", params)
+    hs = to_numbers("horizons", horizons, ">0")
+    qs = (
+        DEFAULT_QUANTILES
+        if probabilities is None
+        else to_numbers("probabilities", probabilities, "(0,1)")
+    )
+    table = variance_report(
+        p,
+        hs,
+        qs,
+        to_number("dt", dt, ">0", default=1 / 252),
+        to_number("near_zero", near_zero, ">0", default=1e-4),
+    )
+    return _table(table.drop(columns=["feller_ratio", "regime"]), index_name="horizon_years")
+
+
+@sheet_function(
+    "number, or a column for a range of strikes",
+    params=PARAMS_DOC,
+    spot="spot price, > 0",
+    strike="strike or range of strikes, > 0",
+    maturity="years, > 0",
+    rate="continuous rate (empty: 0)",
+    div_yield="continuous dividend yield (empty: 0)",
+    kind="call or put (empty: call)",
+)
+def ROOTVAR_FOURIER_PRICE(params, spot, strike, maturity, rate=None, div_yield=None, kind=None):
+    """European option price under Heston by the certified COS Fourier method."""
+    p = to_params("params", params)
+    s, ks, t, r, q, kd = _market(spot, strike, maturity, rate, div_yield, kind)
+    return _one_or_column(heston_price(p, s, ks, t, r, q, kd), ks.size == 1)
+
+
+@sheet_function(
+    "number, or a column for a range of strikes (empty text where no volatility exists)",
+    params=PARAMS_DOC,
+    spot="spot price, > 0",
+    strike="strike or range of strikes, > 0",
+    maturity="years, > 0",
+    rate="continuous rate (empty: 0)",
+    div_yield="continuous dividend yield (empty: 0)",
+)
+def ROOTVAR_FOURIER_VOL(params, spot, strike, maturity, rate=None, div_yield=None):
+    """Heston Fourier prices quoted as Black-Scholes implied volatilities."""
+    p = to_params("params", params)
+    s, ks, t, r, q, _ = _market(spot, strike, maturity, rate, div_yield, None)
+    vols = np.atleast_1d(heston_implied_vol(p, s, ks, t, r, q))
+    cells = [[_finite(float(v))] for v in vols]
+    return cells[0][0] if ks.size == 1 else cells
+
+
+@sheet_function(
+    "number: annualised volatility",
+    price="option price, > 0",
+    spot="spot price, > 0",
+    strike="strike, > 0",
+    maturity="years, > 0",
+    rate="continuous rate (empty: 0)",
+    div_yield="continuous dividend yield (empty: 0)",
+    kind="call or put (empty: call)",
+)
+def ROOTVAR_IMPLIED_VOL(price, spot, strike, maturity, rate=None, div_yield=None, kind=None):
+    """Black-Scholes implied volatility of an option price."""
+    value = to_number("price", price)
+    s, ks, t, r, q, kd = _market(spot, strike, maturity, rate, div_yield, kind)
+    vol, why = implied_vol_reason(value, s, _single_strike(ks), t, r, q, kd)
+    if str(why):
+        raise CellError(f"price must lie within the no-arbitrage bounds ({why}), got {value!r}")
+    return float(vol)
+
+
+_MC_DOCS = dict(
+    params=PARAMS_DOC,
+    spot="spot price, > 0",
+    strike="strike, > 0",
+    maturity="years, > 0",
+    rate="continuous rate (empty: 0)",
+    div_yield="continuous dividend yield (empty: 0)",
+    kind="call or put (empty: call)",
+    scheme="euler_absorb, euler_reflect, euler_partial, euler_full, qe, qe_martingale or "
+    "exact_variance (empty: qe)",
+    steps="time steps over the maturity (empty: 32)",
+    paths="number of paths (empty: 20000)",
+    seed=f"random seed (empty: {DEFAULT_SEED})",
+)
+
+
+@functools.lru_cache(maxsize=256)
+def _cached_mc(p, s, k, t, r, q, kind, scheme, steps, paths, seed, anti, cond):
+    return mc_price(p, s, k, t, r, q, kind, scheme, steps, paths, seed, anti, cond)
+
+
+def _mc_args(params, spot, strike, maturity, rate, div_yield, kind, scheme, steps, paths, seed):
+    p = to_params("params", params)
+    s, ks, t, r, q, kd = _market(spot, strike, maturity, rate, div_yield, kind)
+    k = _single_strike(ks)
+    sch = to_choice("scheme", scheme, SCHEME_NAMES, "qe")
+    n_steps = to_int("steps", steps, 32, 1, 100_000)
+    n_paths = to_int("paths", paths, 20_000, 2, 10_000_000)
+    sd = to_int("seed", seed, DEFAULT_SEED, 0)
+    return p, s, k, t, r, q, kd, sch, n_steps, n_paths, sd
+
+
+@sheet_function(
+    "table: label / value rows (price, std error, 95% interval, negative-step shares, seconds)",
+    **_MC_DOCS,
+    antithetic="TRUE to mirror the draws (empty: FALSE)",
+    conditional="TRUE to price by Black-Scholes given the variance path (empty: FALSE)",
+)
+def ROOTVAR_MC_PRICE(
+    params,
+    spot,
+    strike,
+    maturity,
+    rate=None,
+    div_yield=None,
+    kind=None,
+    scheme=None,
+    steps=None,
+    paths=None,
+    seed=None,
+    antithetic=None,
+    conditional=None,
+):
+    """European option price under Heston by Monte Carlo, with its statistics."""
+    args = _mc_args(
+        params, spot, strike, maturity, rate, div_yield, kind, scheme, steps, paths, seed
+    )
+    anti = to_bool("antithetic", antithetic, False)
+    cond = to_bool("conditional", conditional, False)
+    if anti and args[-2] % 2:
+        raise CellError(f"paths must be even with antithetic TRUE, got {args[-2]}")
+    _check_work(args[-2], args[-3])
+    r = _cached_mc(*args, anti, cond)
+    return _pairs(
+        [
+            ["price", r.price],
+            ["std error", r.std_error],
+            ["95% low", r.ci_low],
+            ["95% high", r.ci_high],
+            ["negative-step share", r.negative_step_fraction],
+            ["expected negative-step share", r.expected_negative_step_fraction],
+            ["zero-touch share", r.zero_touch_fraction],
+            ["seconds", r.elapsed_s],
+        ]
+    )
+
+
+@sheet_function(
+    "table: label / value rows ending with the verdict and its reason",
+    **_MC_DOCS,
+    tolerance_bp="tolerance in implied-vol basis points (empty: 5)",
+    z="band width in standard errors (empty: 3)",
+)
+def ROOTVAR_MC_CHECK(
+    params,
+    spot,
+    strike,
+    maturity,
+    rate=None,
+    div_yield=None,
+    kind=None,
+    scheme=None,
+    steps=None,
+    paths=None,
+    seed=None,
+    tolerance_bp=None,
+    z=None,
+):
+    """Fourier against Monte Carlo (conditional) for one vanilla, with a verdict."""
+    p, s, k, t, r, q, kd, sch, n_steps, n_paths, sd = _mc_args(
+        params, spot, strike, maturity, rate, div_yield, kind, scheme, steps, paths, seed
+    )
+    tol = to_number("tolerance_bp", tolerance_bp, ">0", default=DEFAULT_TOLERANCE_BP)
+    width = to_number("z", z, ">0", default=3.0)
+    _check_work(n_paths, n_steps)
+    run = _cached_mc(p, s, k, t, r, q, kd, sch, n_steps, n_paths, sd, False, True)
+    c = compare_mc_fourier(p, s, k, t, r, q, kd, tolerance_bp=tol, z=width, mc_result=run)
+    return _pairs(
+        [
+            ["Fourier price", c.fourier_price],
+            ["Monte Carlo price", run.price],
+            ["std error", run.std_error],
+            ["difference", c.diff_price],
+            ["difference (vol bp)", _finite(c.diff_vol_bp)],
+            ["z-score", _finite(c.z_score)],
+            ["tolerance (vol bp)", tol],
+            ["verdict", str(c.verdict)],
+            ["paths to settle", int(c.paths_to_settle)],
+            ["reason", str(c.reason)],
+        ]
+    )
+
+
+@sheet_function(
+    "table: header row, one row per scheme and step count, then the recommendation",
+    params=PARAMS_DOC,
+    spot="spot price, > 0",
+    strike="strike, > 0",
+    maturity="years, > 0",
+    rate="continuous rate (empty: 0)",
+    div_yield="continuous dividend yield (empty: 0)",
+    kind="call or put (empty: call)",
+    schemes="scheme names, comma-separated or a range (empty: euler_full, qe, exact_variance)",
+    steps_list="range of step counts (empty: 2, 4, 8, 16, 32)",
+    paths="paths per cell of the grid (empty: 10000)",
+    seed=f"random seed (empty: {DEFAULT_SEED})",
+    tolerance_bp="tolerance in implied-vol basis points (empty: 5)",
+    antithetic="TRUE to mirror the draws (empty: FALSE)",
+)
+def ROOTVAR_STEP_STUDY(
+    params,
+    spot,
+    strike,
+    maturity,
+    rate=None,
+    div_yield=None,
+    kind=None,
+    schemes=None,
+    steps_list=None,
+    paths=None,
+    seed=None,
+    tolerance_bp=None,
+    antithetic=None,
+):
+    """Bias of each scheme against Fourier over step counts, and the coarsest good step."""
+    p = to_params("params", params)
+    s, ks, t, r, q, kd = _market(spot, strike, maturity, rate, div_yield, kind)
+    k = _single_strike(ks)
+    names = to_text_list("schemes", schemes, SCHEME_NAMES, ("euler_full", "qe", "exact_variance"))
+    grid = (
+        [2, 4, 8, 16, 32]
+        if steps_list is None
+        else [to_int("steps_list", n, 1, 1, 100_000) for n in to_numbers("steps_list", steps_list)]
+    )
+    n_paths = to_int("paths", paths, 10_000, 2, 10_000_000)
+    sd = to_int("seed", seed, DEFAULT_SEED, 0)
+    tol = to_number("tolerance_bp", tolerance_bp, ">0", default=DEFAULT_TOLERANCE_BP)
+    anti = to_bool("antithetic", antithetic, False)
+    if anti and n_paths % 2:
+        raise CellError(f"paths must be even with antithetic TRUE, got {n_paths}")
+    _check_work(n_paths, sum(grid) * len(names))
+    table = _cached_study(p, s, k, t, r, q, kd, tuple(names), tuple(grid), n_paths, sd, tol, anti)
+    rows = _table(table)
+    best = table.attrs["cheapest"]
+    rows.append(
+        [
+            "recommendation",
+            f"{best['scheme']} at {best['steps']} steps" if best else "none consistent",
+        ]
+        + [""] * (len(rows[0]) - 2)
+    )
+    return rows
+
+
+@functools.lru_cache(maxsize=64)
+def _cached_study(p, s, k, t, r, q, kind, names, grid, paths, seed, tol, anti):
+    return step_study(
+        p, s, k, t, r, q, kind, names, grid, paths, seed, tolerance_bp=tol, antithetic=anti
+    )
+
+
+def clear_cache() -> None:
+    """Forget cached Monte Carlo results (for tests and long sessions)."""
+    _cached_mc.cache_clear()
+    _cached_study.cache_clear()
+
+
+def call(name: str, *args):
+    """Call a registered function by its spreadsheet name (used by the engine)."""
+    return REGISTRY[name].func(*args)
+
+
+_ = HestonParams  # re-exported type for callers building parameter blocks
