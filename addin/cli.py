@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from pathlib import Path
 
@@ -56,7 +57,7 @@ def _cmd_report(args) -> int:
 
 def _cmd_demo(args) -> int:
     from .engine import compute_workbook
-    from .workbook_build import PARAMETER_CHECK, PRICE_TWICE, build_all
+    from .workbook_build import CONTROL, PARAMETER_CHECK, PRICE_TWICE, build_all
 
     print(f"rootvar {__version__} - {DESK_NAME} (invented demo data)\n")
     for model in demo_models():
@@ -75,9 +76,40 @@ def _cmd_demo(args) -> int:
             f"  {name}: {report.formulas} formulas computed headlessly ({status}) -> "
             f"{report.output.name}"
         )
+    from .control import refresh, summary_table
+
+    outcome = refresh(out / CONTROL, as_of=args.as_of, workers=2, quiet=True)
+    print(
+        f"  {CONTROL}: refreshed in place (exit code {outcome.exit_code}); backup "
+        f"{outcome.backup.name if outcome.backup else 'none'}"
+    )
+    print()
+    print(summary_table(outcome.rows))
     print()
     print(CAUTION)
     return 0
+
+
+def _cmd_refresh(args) -> int:
+    from .control import EXIT_FILE, ControlError, refresh, summary_table
+
+    try:
+        outcome = refresh(
+            args.workbook, args.as_of, args.out, args.workers, args.scheduler, quiet=args.quiet
+        )
+    except ControlError as exc:
+        print(f"rootvar refresh: {exc}; nothing was written", file=sys.stderr)
+        return EXIT_FILE
+    for note in outcome.notes:
+        print(f"rootvar refresh: {note}", file=sys.stderr)
+    if not args.quiet:
+        print(summary_table(outcome.rows))
+        print(
+            f"\nwritten to {outcome.output}"
+            + (f" (previous file kept as {outcome.backup})" if outcome.backup else "")
+        )
+        print(CAUTION)
+    return outcome.exit_code
 
 
 def _cmd_build(args) -> int:
@@ -138,6 +170,7 @@ def build_parser() -> argparse.ArgumentParser:
         "demo", parents=[common], help="report on the invented demo desk and build its workbooks"
     )
     demo.add_argument("--out", default="out", help="folder for the demo workbooks (default out)")
+    demo.add_argument("--as-of", default=None, help="as-of date of the control refresh")
     demo.set_defaults(func=_cmd_demo)
 
     build = sub.add_parser("build-workbooks", help="build the shipped workbook templates")
@@ -153,6 +186,33 @@ def build_parser() -> argparse.ArgumentParser:
     compute.add_argument("workbook")
     compute.add_argument("--out", help="computed copy (default <name>.computed.xlsx beside it)")
     compute.set_defaults(func=_cmd_compute)
+
+    ref = sub.add_parser(
+        "refresh",
+        help="refresh the daily control workbook (all models, headless)",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+        description="Checks every model of the control workbook and writes the Results and "
+        "History sheets.",
+        epilog="exit codes:\n  0  all clear\n  1  breaches or undecided checks found\n"
+        "  2  input or file error: nothing was written\n"
+        "  3  some rows failed (input errors or failed checks); the rest were written",
+    )
+    ref.add_argument("workbook")
+    ref.add_argument("--as-of", default=None, help="as-of date, YYYY-MM-DD (default today)")
+    ref.add_argument("--out", default=None, help="write here instead of refreshing in place")
+    ref.add_argument(
+        "--workers",
+        type=int,
+        default=os.cpu_count() or 1,
+        help="local worker processes (default: all cores)",
+    )
+    ref.add_argument(
+        "--scheduler",
+        default=None,
+        help="address of a Dask distributed scheduler (needs rootvar[cluster])",
+    )
+    ref.add_argument("--quiet", action="store_true", help="no progress, no summary (schedulers)")
+    ref.set_defaults(func=_cmd_refresh)
     return parser
 
 

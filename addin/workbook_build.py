@@ -26,10 +26,11 @@ from rootvar.core import DEFAULT_QUANTILES
 from .cli_text import CAUTION
 from .demo_desk import DESK_NAME, demo_models
 
-__all__ = ["PARAMETER_CHECK", "PRICE_TWICE", "build_all", "save_deterministic"]
+__all__ = ["CONTROL", "PARAMETER_CHECK", "PRICE_TWICE", "build_all", "save_deterministic"]
 
 PARAMETER_CHECK = "parameter_check.xlsx"
 PRICE_TWICE = "price_twice.xlsx"
+CONTROL = "control.xlsx"
 
 _FIXED_TIME = datetime(2026, 1, 5, 9, 0, 0)
 _STAMP = b"2026-01-05T09:00:00Z"
@@ -287,10 +288,73 @@ def build_price_twice(path: Path) -> None:
     save_deterministic(wb, path)
 
 
+def build_control(path: Path) -> None:
+    """Middle office's control workbook: settings, the models of the book, results, history."""
+    from .control import MODEL_COLUMNS, RESULT_COLUMNS, SETTING_LABELS
+
+    wb = Workbook()
+    ws = wb.active
+    ws.title = "Settings"
+    ws["A1"] = f"{DESK_NAME}: daily Heston model control"
+    ws["A1"].font = _TITLE
+    ws["A2"] = CAUTION
+    ws["A2"].font = _NOTE
+    defaults = {
+        "feller ratio warning below": 0.3,
+        "max negative-step probability": 0.001,
+        "production scheme": "euler_full",
+        "steps per year": 52,
+        "paths": 40000,
+        "seed": 20240601,
+        "tolerance (vol bp)": 10.0,
+        "z": 3.0,
+        "quantile levels": "0.01, 0.5, 0.99",
+    }
+    for i, label in enumerate(SETTING_LABELS, start=4):
+        ws.cell(row=i, column=1, value=label)
+        ws.cell(row=i, column=2, value=defaults[label]).fill = _INPUT
+    ws["A14"] = (
+        "Refresh with: rootvar refresh control.xlsx [--as-of DATE] [--workers N]; "
+        "results and history are written by the refresh."
+    )
+    ws["A14"].font = _NOTE
+    _widths(ws, {"A": 34, "B": 18})
+
+    models = wb.create_sheet("Models")
+    for j, name in enumerate(MODEL_COLUMNS, start=1):
+        models.cell(row=1, column=j, value=name).font = _BOLD
+    for i, m in enumerate(demo_models(), start=2):
+        p = m.params
+        row = [
+            m.model_id,
+            m.underlying,
+            m.spot,
+            m.rate,
+            m.div_yield,
+            p.v0,
+            p.kappa,
+            p.theta,
+            p.vol_of_vol,
+            p.rho,
+            "0.5, 2",
+            "0.8, 0.9, 1, 1.1, 1.2",
+        ]
+        for j, v in enumerate(row, start=1):
+            models.cell(row=i, column=j, value=v).fill = _INPUT
+    _widths(models, {"A": 12, "B": 26, "K": 18, "L": 26})
+    for title in ("Results", "History"):
+        sheet = wb.create_sheet(title)
+        for j, name in enumerate(RESULT_COLUMNS, start=1):
+            sheet.cell(row=1, column=j, value=name).font = _BOLD
+    path.parent.mkdir(parents=True, exist_ok=True)
+    save_deterministic(wb, path)
+
+
 def build_all(folder) -> list[Path]:
     """Build every shipped workbook into ``folder``; returns their paths."""
     folder = Path(folder)
-    paths = [folder / PARAMETER_CHECK, folder / PRICE_TWICE]
+    paths = [folder / PARAMETER_CHECK, folder / PRICE_TWICE, folder / CONTROL]
     build_parameter_check(paths[0])
     build_price_twice(paths[1])
+    build_control(paths[2])
     return paths

@@ -28,6 +28,18 @@ CONSISTENT = "consistent"
 BIASED = "biased"
 UNDECIDED = "undecided"
 
+#: Relative cost of one path-step per scheme (Euler = 1), from the Monte Carlo
+#: benchmark on the development machine (benchmarks/bench_monte_carlo.py).
+SCHEME_COST = {
+    "euler_absorb": 1.0,
+    "euler_reflect": 1.0,
+    "euler_partial": 1.0,
+    "euler_full": 1.0,
+    "qe": 1.5,
+    "qe_martingale": 2.0,
+    "exact_variance": 4.0,
+}
+
 #: Default tolerance, implied-volatility basis points.  Five basis points is
 #: well inside a vanilla bid-ask spread (typically tens of bp) yet above what
 #: a few hundred thousand conditional paths resolve, so a failure means a
@@ -253,7 +265,8 @@ def step_study(
         ``verdict``, ``seconds``.  ``attrs["coarsest_consistent"]`` maps each
         scheme to the fewest steps with a "consistent" verdict (None if
         none), ``attrs["cheapest"]`` names the consistent cell with the
-        smallest run time, and ``attrs["fourier_price"]`` the yardstick.
+        lowest cost (steps x :data:`SCHEME_COST`, deterministic, unlike the
+        measured ``seconds``), and ``attrs["fourier_price"]`` the yardstick.
     """
     if np.ndim(strike) != 0:
         raise InputError(f"strike must be a single number for a step study, got {strike!r}")
@@ -309,7 +322,10 @@ def step_study(
     }
     cheapest = None
     if len(good):
-        best = good.loc[good["seconds"].idxmin()]
+        # cost = steps x the scheme's relative cost per path-step, not the measured
+        # seconds, so the recommendation is the same on every machine and run
+        cost = good["steps"] * good["scheme"].map(SCHEME_COST)
+        best = good.loc[cost.idxmin()]
         cheapest = {
             "scheme": best["scheme"],
             "steps": int(best["steps"]),
