@@ -8,31 +8,27 @@ market data; use it for demonstrations only.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 from rootvar.core import HestonParams
+from rootvar.core.control import ModelSpec
 
-__all__ = ["DESK_NAME", "DemoModel", "demo_models"]
+__all__ = ["DEMO_MATURITIES", "DEMO_MONEYNESS", "DESK_NAME", "demo_models"]
 
 DESK_NAME = "Harbourline volatility desk"
+#: Test options the desk controls every day (years; strike / spot).
+DEMO_MATURITIES = (0.5, 2.0)
+DEMO_MONEYNESS = (0.8, 0.9, 1.0, 1.1, 1.2)
 
 
-@dataclass(frozen=True)
-class DemoModel:
-    """One invented model of the demo desk."""
-
-    model_id: str
-    underlying: str
-    spot: float
-    rate: float
-    div_yield: float
-    params: HestonParams
+def _model(model_id, underlying, spot, rate, div_yield, params):
+    return ModelSpec(
+        model_id, underlying, spot, rate, div_yield, params, DEMO_MATURITIES, DEMO_MONEYNESS
+    )
 
 
-def demo_models() -> list[DemoModel]:
+def demo_models() -> list[ModelSpec]:
     """The desk's five models (invented data)."""
     return [
-        DemoModel(
+        _model(
             "ALD-EQX",
             "Alder 50 equity index",
             4125.0,
@@ -40,7 +36,7 @@ def demo_models() -> list[DemoModel]:
             0.018,
             HestonParams(v0=0.028, kappa=2.1, theta=0.045, vol_of_vol=0.72, rho=-0.74),
         ),
-        DemoModel(
+        _model(
             "CRV-SHP",
             "Corvid Shipping",
             38.6,
@@ -48,7 +44,7 @@ def demo_models() -> list[DemoModel]:
             0.042,
             HestonParams(v0=0.09, kappa=1.3, theta=0.11, vol_of_vol=0.95, rho=-0.52),
         ),
-        DemoModel(
+        _model(
             "MRD-PWR",
             "Meridale Power",
             71.2,
@@ -56,7 +52,7 @@ def demo_models() -> list[DemoModel]:
             0.035,
             HestonParams(v0=0.021, kappa=3.4, theta=0.026, vol_of_vol=0.38, rho=-0.41),
         ),
-        DemoModel(
+        _model(
             "TMS-BIO",
             "Tamsin Biotech",
             12.9,
@@ -64,7 +60,7 @@ def demo_models() -> list[DemoModel]:
             0.0,
             HestonParams(v0=0.16, kappa=0.85, theta=0.19, vol_of_vol=1.35, rho=-0.28),
         ),
-        DemoModel(
+        _model(
             "QLN-FXB",
             "Quillon currency basket",
             1.084,

@@ -168,6 +168,13 @@ def _pairs(rows) -> list[list]:
     return [[label, _finite(value)] for label, value in rows]
 
 
+def _law(params, horizon):
+    """Exact law of the variance at a horizon, from cell arguments."""
+    p = to_params("params", params)
+    t = to_number("horizon", horizon, ">0")
+    return cir_transition(p.v0, p.kappa, p.theta, p.vol_of_vol, t)
+
+
 def _market(spot, strike, maturity, rate, div_yield, kind):
     return (
         to_number("spot", spot, ">0"),
@@ -246,10 +253,7 @@ def ROOTVAR_EULER_SAFE_STEP(params, tolerance, variance=None):
 )
 def ROOTVAR_VAR_QUANTILE(params, horizon, probability):
     """Quantile of the exact law of the variance at a horizon."""
-    p = to_params("params", params)
-    t = to_number("horizon", horizon, ">0")
-    q = to_number("probability", probability, "(0,1)")
-    return float(cir_transition(p.v0, p.kappa, p.theta, p.vol_of_vol, t).ppf(q))
+    return float(_law(params, horizon).ppf(to_number("probability", probability, "(0,1)")))
 
 
 @sheet_function(
@@ -260,10 +264,7 @@ def ROOTVAR_VAR_QUANTILE(params, horizon, probability):
 )
 def ROOTVAR_VAR_CDF(params, horizon, level):
     """Probability that the variance is at or below a level at a horizon (exact law)."""
-    p = to_params("params", params)
-    t = to_number("horizon", horizon, ">0")
-    x = to_number("level", level, ">=0")
-    return float(cir_transition(p.v0, p.kappa, p.theta, p.vol_of_vol, t).cdf(x))
+    return float(_law(params, horizon).cdf(to_number("level", level, ">=0")))
 
 
 @sheet_function(

@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import optimize, special, stats
 
-from .validation import as_float_array, broadcast
+from .validation import cir_parameters
 
 __all__ = ["TINY_VARIANCE", "cir_stationary", "cir_transition", "cir_transition_shapes"]
 
@@ -145,13 +145,8 @@ def cir_transition_shapes(v0, kappa, theta, vol_of_vol, t):
     ``c = vol_of_vol^2 (1 - e^{-kappa t}) / (4 kappa)``,
     ``df = 4 kappa theta / vol_of_vol^2`` and ``nc = v0 e^{-kappa t} / c``.
     """
-    v0 = as_float_array("v0", v0, ">=0")
-    kappa = as_float_array("kappa", kappa, ">0")
-    theta = as_float_array("theta", theta, ">0")
-    vol_of_vol = as_float_array("vol_of_vol", vol_of_vol, ">0")
-    t = as_float_array("t", t, ">0")
-    v0, kappa, theta, vol_of_vol, t = broadcast(
-        v0=v0, kappa=kappa, theta=theta, vol_of_vol=vol_of_vol, t=t
+    kappa, theta, vol_of_vol, v0, t = cir_parameters(
+        kappa, theta, vol_of_vol, v0=(v0, ">=0"), t=(t, ">0")
     )
     decay = np.exp(-kappa * t)
     c = vol_of_vol**2 * -np.expm1(-kappa * t) / (4.0 * kappa)
@@ -226,8 +221,5 @@ def cir_stationary(kappa, theta, vol_of_vol):
     Cox, J. C., Ingersoll, J. E. & Ross, S. A. (1985). Econometrica 53(2),
     385-407.
     """
-    kappa = as_float_array("kappa", kappa, ">0")
-    theta = as_float_array("theta", theta, ">0")
-    vol_of_vol = as_float_array("vol_of_vol", vol_of_vol, ">0")
-    kappa, theta, vol_of_vol = broadcast(kappa=kappa, theta=theta, vol_of_vol=vol_of_vol)
+    kappa, theta, vol_of_vol = cir_parameters(kappa, theta, vol_of_vol)
     return stats.gamma(2.0 * kappa * theta / vol_of_vol**2, scale=vol_of_vol**2 / (2.0 * kappa))

@@ -18,6 +18,7 @@ __all__ = [
     "as_positive_int",
     "broadcast",
     "check_choice",
+    "cir_parameters",
     "scalar_or_array",
 ]
 
@@ -99,6 +100,21 @@ def broadcast(**arrays: np.ndarray) -> list[np.ndarray]:
     except ValueError as exc:
         shapes = ", ".join(f"{k} {np.shape(v)}" for k, v in arrays.items())
         raise InputError(f"arguments must broadcast to one shape, got {shapes}") from exc
+
+
+def cir_parameters(kappa, theta, vol_of_vol, **more):
+    """Checked, broadcast CIR parameters (each > 0), plus any ``name=(value, rule)`` extras.
+
+    Returns the arrays in the order kappa, theta, vol_of_vol, then the extras.
+    """
+    arrays = {
+        "kappa": as_float_array("kappa", kappa, ">0"),
+        "theta": as_float_array("theta", theta, ">0"),
+        "vol_of_vol": as_float_array("vol_of_vol", vol_of_vol, ">0"),
+    }
+    for name, (value, rule) in more.items():
+        arrays[name] = as_float_array(name, value, rule)
+    return broadcast(**arrays)
 
 
 def scalar_or_array(result: np.ndarray):

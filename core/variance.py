@@ -8,7 +8,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.special import ndtr, ndtri
 
-from .validation import as_float_array, broadcast, scalar_or_array
+from .validation import cir_parameters, scalar_or_array
 
 __all__ = ["euler_max_step", "euler_negative_probability", "feller_ratio", "regime_label"]
 
@@ -36,10 +36,7 @@ def feller_ratio(kappa, theta, vol_of_vol):
     Feller, W. (1951). Two singular diffusion problems. Annals of Mathematics
     54(1), 173-182.
     """
-    kappa = as_float_array("kappa", kappa, ">0")
-    theta = as_float_array("theta", theta, ">0")
-    vol_of_vol = as_float_array("vol_of_vol", vol_of_vol, ">0")
-    kappa, theta, vol_of_vol = broadcast(kappa=kappa, theta=theta, vol_of_vol=vol_of_vol)
+    kappa, theta, vol_of_vol = cir_parameters(kappa, theta, vol_of_vol)
     return scalar_or_array(2.0 * kappa * theta / vol_of_vol**2)
 
 
@@ -61,15 +58,6 @@ def regime_label(ratio) -> str:
     if ratio >= 0.2:
         return "marked breach"
     return "severe breach"
-
-
-def _variance_args(v, kappa, theta, vol_of_vol):
-    return broadcast(
-        v=as_float_array("v", v, ">=0"),
-        kappa=as_float_array("kappa", kappa, ">0"),
-        theta=as_float_array("theta", theta, ">0"),
-        vol_of_vol=as_float_array("vol_of_vol", vol_of_vol, ">0"),
-    )
 
 
 def euler_negative_probability(v, kappa, theta, vol_of_vol, dt):
@@ -108,10 +96,8 @@ def euler_negative_probability(v, kappa, theta, vol_of_vol, dt):
     simulation schemes for stochastic volatility models. Quantitative Finance
     10(2), 177-194.
     """
-    v, kappa, theta, vol_of_vol = _variance_args(v, kappa, theta, vol_of_vol)
-    dt = as_float_array("dt", dt, ">0")
-    v, kappa, theta, vol_of_vol, dt = broadcast(
-        v=v, kappa=kappa, theta=theta, vol_of_vol=vol_of_vol, dt=dt
+    kappa, theta, vol_of_vol, v, dt = cir_parameters(
+        kappa, theta, vol_of_vol, v=(v, ">=0"), dt=(dt, ">0")
     )
     with np.errstate(divide="ignore", invalid="ignore"):
         drift = v + kappa * (theta - v) * dt
@@ -166,10 +152,8 @@ def euler_max_step(v, kappa, theta, vol_of_vol, tolerance):
     answer is ``inf`` (this also covers ``tolerance >= 0.5`` with
     ``theta >= v``).
     """
-    v, kappa, theta, vol_of_vol = _variance_args(v, kappa, theta, vol_of_vol)
-    tolerance = as_float_array("tolerance", tolerance, "(0,1)")
-    v, kappa, theta, vol_of_vol, tolerance = broadcast(
-        v=v, kappa=kappa, theta=theta, vol_of_vol=vol_of_vol, tolerance=tolerance
+    kappa, theta, vol_of_vol, v, tolerance = cir_parameters(
+        kappa, theta, vol_of_vol, v=(v, ">=0"), tolerance=(tolerance, "(0,1)")
     )
     c = -ndtri(tolerance)  # Phi^{-1}(1 - tol) without losing digits for tiny tol
     b = c * vol_of_vol * np.sqrt(v)
