@@ -118,35 +118,20 @@ def lewis_call_price(params, spot, strike, maturity, rate=0.0, div_yield=0.0, ep
         with warnings.catch_warnings():
             warnings.simplefilter("error", integrate.IntegrationWarning)
             try:
+                opts = {"epsabs": epsabs, "epsrel": 1e-13, "limit": 2000}
                 if abs(k) * upper < 1.0:
                     val = integrate.quad(
                         lambda u: (np.exp(1j * u * k) * g(u)).real,  # noqa: B023
                         0.0,
                         upper,
-                        epsabs=epsabs,
-                        epsrel=1e-13,
-                        limit=2000,
+                        **opts,
                     )[0]
-                else:
+                else:  # QUADPACK's oscillatory rule (QAWO) for the cos and sin parts
                     re = integrate.quad(
-                        lambda u: g(u).real,
-                        0.0,
-                        upper,
-                        weight="cos",
-                        wvar=k,
-                        epsabs=epsabs,
-                        epsrel=1e-13,
-                        limit=2000,
+                        lambda u: g(u).real, 0.0, upper, weight="cos", wvar=k, **opts
                     )[0]
                     im = integrate.quad(
-                        lambda u: g(u).imag,
-                        0.0,
-                        upper,
-                        weight="sin",
-                        wvar=k,
-                        epsabs=epsabs,
-                        epsrel=1e-13,
-                        limit=2000,
+                        lambda u: g(u).imag, 0.0, upper, weight="sin", wvar=k, **opts
                     )[0]
                     val = re - im
             except integrate.IntegrationWarning as exc:

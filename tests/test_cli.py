@@ -51,3 +51,29 @@ def test_demo_runs_over_the_invented_desk(capsys):
     assert main(["demo"]) == 0
     out = capsys.readouterr().out
     assert "Harbourline" in out and "TMS-BIO" in out
+
+
+def test_compute_and_refresh_exit_codes(tmp_path, capsys):
+    from rootvar.addin.workbook_build import build_all
+
+    trader, _, _ = build_all(tmp_path)
+    assert main(["compute", str(trader), "--out", str(tmp_path / "t.xlsx")]) == 0
+    assert main(["compute", str(tmp_path / "missing.xlsx")]) == 2
+    bad = tmp_path / "cycle.xlsx"
+    from openpyxl import Workbook
+
+    wb = Workbook()
+    wb.active["A1"], wb.active["B1"] = "=B1", "=A1"
+    wb.save(bad)
+    assert main(["compute", str(bad)]) == 2
+    assert "reference cycle" in capsys.readouterr().err
+
+
+def test_refresh_help_lists_the_exit_codes(capsys):
+    import pytest
+
+    with pytest.raises(SystemExit):
+        main(["refresh", "--help"])
+    text = capsys.readouterr().out
+    for line in ("0  all clear", "1  breaches", "2  input or file error", "3  some rows failed"):
+        assert line in text
