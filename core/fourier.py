@@ -111,8 +111,8 @@ class _CosSeries:
         if n > MAX_TERMS:
             return None
         omega = np.arange(n) * np.pi / (b - a)
-        phi = np.exp(heston_log_cf(omega, params, maturity, drift))
-        coef = (phi * np.exp(-1j * omega * a)).real
+        # Re[cf(omega) exp(-i omega a)], folded into one complex exponential
+        coef = np.exp(heston_log_cf(omega, params, maturity, drift) - 1j * a * omega).real
         coef[0] *= 0.5  # the primed sum halves the first term
         return cls(a, b, omega, coef)
 
