@@ -17,6 +17,7 @@ import re
 import numpy as np
 
 from rootvar.core import HestonParams, InputError
+from rootvar.core.validation import as_float_array
 
 __all__ = [
     "MARK",
@@ -115,8 +116,6 @@ def to_number(name: str, value, *rules: str, default=None) -> float:
     if not _is_number(value):
         raise CellError(f"{name} must be a number, got {_describe(value)}")
     try:
-        from rootvar.core.validation import as_float_array
-
         return float(as_float_array(name, float(value), *rules))
     except InputError as exc:
         raise CellError(str(exc)) from exc

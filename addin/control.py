@@ -32,6 +32,7 @@ from openpyxl import load_workbook
 from openpyxl.chart import BarChart, Reference
 from openpyxl.formatting.rule import FormulaRule
 from openpyxl.styles import Font, PatternFill
+from openpyxl.utils import get_column_letter
 
 from rootvar.core import HestonParams, InputError, __version__
 from rootvar.core.control import ControlSettings, ModelSpec, check_model, row_seed
@@ -414,8 +415,8 @@ def _write_results(wb, rows):
     _write_table(ws, rows)
     last = len(rows) + 1
     status = RESULT_COLUMNS.index("status") + 1
-    col = chr(ord("A") + status - 1)
-    span = f"A2:{_letter(len(RESULT_COLUMNS))}{max(last, 2)}"
+    col = get_column_letter(status)
+    span = f"A2:{get_column_letter(len(RESULT_COLUMNS))}{max(last, 2)}"
     ws.conditional_formatting.add(span, FormulaRule(formula=[f'${col}2="breach"'], fill=_AMBER))
     ws.conditional_formatting.add(
         span, FormulaRule(formula=[f'OR(${col}2="input error",${col}2="failed")'], fill=_ROSE)
@@ -429,13 +430,7 @@ def _write_results(wb, rows):
         chart.set_categories(Reference(ws, min_col=4, min_row=2, max_row=last))
         chart.legend = None
         chart.height, chart.width = 8, 22
-        ws.add_chart(chart, f"{_letter(len(RESULT_COLUMNS) + 2)}2")
-
-
-def _letter(n):
-    from openpyxl.utils import get_column_letter
-
-    return get_column_letter(n)
+        ws.add_chart(chart, f"{get_column_letter(len(RESULT_COLUMNS) + 2)}2")
 
 
 def _write_history(wb, rows, as_of):

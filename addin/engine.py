@@ -187,7 +187,7 @@ def _refs(node, home):
 
 # ------------------------------------------------------------------ evaluation
 
-_ERR_DIV0, _ERR_VALUE = "#DIV/0!", "#VALUE!"
+_ERR_DIV0 = "#DIV/0!"
 
 
 def _flat_numbers(values):

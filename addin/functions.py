@@ -30,7 +30,6 @@ from rootvar.core import (
     DEFAULT_SEED,
     DEFAULT_TOLERANCE_BP,
     SCHEMES,
-    HestonParams,
     __version__,
     cir_transition,
     compare_mc_fourier,
@@ -551,6 +550,3 @@ def clear_cache() -> None:
 def call(name: str, *args):
     """Call a registered function by its spreadsheet name (used by the engine)."""
     return REGISTRY[name].func(*args)
-
-
-_ = HestonParams  # re-exported type for callers building parameter blocks

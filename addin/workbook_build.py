@@ -63,6 +63,11 @@ def save_deterministic(wb: Workbook, path: Path) -> None:
     path.write_bytes(out.getvalue())
 
 
+def _heading(ws, title: str, note: str = CAUTION) -> None:
+    ws["A1"], ws["A2"] = title, note
+    ws["A1"].font, ws["A2"].font = _TITLE, _NOTE
+
+
 def _widths(ws, widths):
     for col, width in widths.items():
         ws.column_dimensions[col].width = width
@@ -92,10 +97,7 @@ def build_parameter_check(path: Path) -> None:
     wb = Workbook()
     ws = wb.active
     ws.title = "Desk models"
-    ws["A1"] = f"{DESK_NAME}: Heston variance check (invented data)"
-    ws["A1"].font = _TITLE
-    ws["A2"] = CAUTION
-    ws["A2"].font = _NOTE
+    _heading(ws, f"{DESK_NAME}: Heston variance check (invented data)")
     ws["A4"], ws["B4"] = "Production Euler step (years)", "=1/252"
     ws["A5"], ws["B5"] = "Acceptable one-step negative probability", 0.001
     ws["B5"].fill = _INPUT
@@ -137,10 +139,11 @@ def build_parameter_check(path: Path) -> None:
 
     law = wb.create_sheet("Variance law")
     chosen = next(m for m in models if m.model_id == "TMS-BIO")
-    law["A1"] = f"Exact law of the variance: {chosen.model_id} ({chosen.underlying})"
-    law["A1"].font = _TITLE
-    law["A2"] = "Change the parameters or horizons; the table and charts follow."
-    law["A2"].font = _NOTE
+    _heading(
+        law,
+        f"Exact law of the variance: {chosen.model_id} ({chosen.underlying})",
+        "Change the parameters or horizons; the table and charts follow.",
+    )
     block = _params_block(law, 4, 1, chosen.params)
     law["A10"], law["B10"] = "Production Euler step (years)", "='Desk models'!B4"
     law["A11"], law["B11"] = "Near-zero variance level", 1e-4
@@ -194,10 +197,7 @@ def build_price_twice(path: Path) -> None:
     ws = wb.active
     ws.title = "Price twice"
     model = next(m for m in demo_models() if m.model_id == "CRV-SHP")
-    ws["A1"] = f"{DESK_NAME}: {model.underlying} call priced twice (invented data)"
-    ws["A1"].font = _TITLE
-    ws["A2"] = CAUTION
-    ws["A2"].font = _NOTE
+    _heading(ws, f"{DESK_NAME}: {model.underlying} call priced twice (invented data)")
     ws["A4"] = "Model"
     ws["A4"].font = _BOLD
     block = _params_block(ws, 5, 1, model.params)
@@ -249,7 +249,8 @@ def build_price_twice(path: Path) -> None:
     st = wb.create_sheet("Step study")
     st["A1"] = "Bias against Fourier by scheme and step count (conditional Monte Carlo)"
     st["A1"].font = _TITLE
-    st["A3"], st["B3"] = "schemes", "euler_absorb,euler_full,qe,exact_variance"
+    study_schemes = ["euler_absorb", "euler_full", "qe", "exact_variance"]
+    st["A3"], st["B3"] = "schemes", ",".join(study_schemes)
     st["A4"], st["B4"] = "paths per cell (antithetic)", 40000
     st["A5"] = "step counts"
     steps = [2, 4, 8, 16, 32]
@@ -257,7 +258,7 @@ def build_price_twice(path: Path) -> None:
         st.cell(row=5, column=2 + j, value=n).fill = _INPUT
     for ref in ("B3", "B4"):
         st[ref].fill = _INPUT
-    schemes = 4
+    schemes = len(study_schemes)
     rows = 1 + schemes * len(steps) + 1
     pt = "'Price twice'"
     st_block = f"{pt}!A5:B9"
@@ -279,7 +280,7 @@ def build_price_twice(path: Path) -> None:
         top = 8 + s * len(steps)
         xs = Reference(st, min_col=2, min_row=top, max_row=top + len(steps) - 1)
         ys = Reference(st, min_col=7, min_row=top, max_row=top + len(steps) - 1)
-        series = Series(ys, xs, title=["euler_absorb", "euler_full", "qe", "exact_variance"][s])
+        series = Series(ys, xs, title=study_schemes[s])
         chart.series.append(series)
     chart.height, chart.width = 8, 16
     st.add_chart(chart, "L7")
@@ -295,10 +296,7 @@ def build_control(path: Path) -> None:
     wb = Workbook()
     ws = wb.active
     ws.title = "Settings"
-    ws["A1"] = f"{DESK_NAME}: daily Heston model control"
-    ws["A1"].font = _TITLE
-    ws["A2"] = CAUTION
-    ws["A2"].font = _NOTE
+    _heading(ws, f"{DESK_NAME}: daily Heston model control")
     defaults = {
         "feller ratio warning below": 0.3,
         "max negative-step probability": 0.001,

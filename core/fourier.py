@@ -198,6 +198,12 @@ def _scalar(name, value, *rules):
     return arr
 
 
+def _call_from_put(put, forward, strike, discount):
+    """Put-call parity, kept inside the call's no-arbitrage bounds."""
+    call = put + discount * (forward - strike)
+    return np.clip(call, np.maximum(discount * (forward - strike), 0.0), discount * forward)
+
+
 def heston_price_details(
     params, spot, strike, maturity, rate=0.0, div_yield=0.0, kind="call", method="cos"
 ) -> FourierDetails:
@@ -229,11 +235,7 @@ def heston_price_details(
     put = df * put
     lower_put = np.maximum(df * (k_flat - fwd), 0.0)
     put = np.clip(put, lower_put, df * k_flat)
-    if kind == "put":
-        price = put
-    else:
-        call = put + df * (fwd - k_flat)
-        price = np.clip(call, np.maximum(df * (fwd - k_flat), 0.0), df * fwd)
+    price = put if kind == "put" else _call_from_put(put, fwd, k_flat, df)
     return FourierDetails(price.reshape(shape), method, terms, widths, fallbacks)
 
 
@@ -324,11 +326,11 @@ def heston_implied_vol(params, spot, strike, maturity, rate=0.0, div_yield=0.0, 
         params, spot, strike, maturity, rate, div_yield, "call", method
     )
     forward = spot_ * np.exp((rate_ - div_) * maturity_)
-    call = heston_price_details(params, spot_, strike_, maturity_, rate_, div_, "call", method)
-    put = heston_price_details(params, spot_, strike_, maturity_, rate_, div_, "put", method)
+    put = heston_price_details(params, spot_, strike_, maturity_, rate_, div_, "put", method).price
+    call = _call_from_put(put, forward, strike_, np.exp(-rate_ * maturity_))
     use_put = strike_ < forward
-    vol_put, _ = implied_vol_reason(put.price, spot_, strike_, maturity_, rate_, div_, "put")
-    vol_call, _ = implied_vol_reason(call.price, spot_, strike_, maturity_, rate_, div_, "call")
-    otm = np.where(use_put, put.price, call.price)
+    vol_put, _ = implied_vol_reason(put, spot_, strike_, maturity_, rate_, div_, "put")
+    vol_call, _ = implied_vol_reason(call, spot_, strike_, maturity_, rate_, div_, "call")
+    otm = np.where(use_put, put, call)
     vol = np.where(use_put, vol_put, vol_call)
     return scalar_or_array(np.where(otm >= PRICE_FLOOR * spot_, vol, np.nan))

@@ -14,6 +14,7 @@ passes the same statistical test batteries as the default PCG64.
 
 from __future__ import annotations
 
+import functools
 import time
 from dataclasses import dataclass, field
 
@@ -77,33 +78,25 @@ class _Draws:
         self._normal = np.empty(self.n)
         self._uniform = np.empty(self.n)
 
-    def normal(self):
-        out = self._normal
+    def _fill(self, out, draw, mirror):
+        """Each block's draws in place; with antithetic, the second half mirrors the first."""
         start = 0
         for gen, size in zip(self.gens, self.sizes, strict=True):
             if self.anti:
                 half = (size + 1) // 2
-                z = gen.standard_normal(half)
-                out[start : start + half] = z
-                out[start + half : start + size] = -z[: size - half]
+                first = draw(gen, half)
+                out[start : start + half] = first
+                out[start + half : start + size] = mirror(first[: size - half])
             else:
-                gen.standard_normal(out=out[start : start + size])
+                out[start : start + size] = draw(gen, size)
             start += size
         return out
 
+    def normal(self):
+        return self._fill(self._normal, lambda g, n: g.standard_normal(n), np.negative)
+
     def uniform(self):
-        out = self._uniform
-        start = 0
-        for gen, size in zip(self.gens, self.sizes, strict=True):
-            if self.anti:
-                half = (size + 1) // 2
-                u = gen.random(half)
-                out[start : start + half] = u
-                out[start + half : start + size] = 1.0 - u[: size - half]
-            else:
-                gen.random(out=out[start : start + size])
-            start += size
-        return out
+        return self._fill(self._uniform, lambda g, n: g.random(n), lambda u: 1.0 - u)
 
     def noncentral_chisquare(self, df, nonc):
         out = np.empty(self.n)
@@ -160,6 +153,7 @@ def _probability_nodes(nodes: int = 64):
     return np.concatenate([u_low, u_high]), np.concatenate([w_low, w_high])
 
 
+@functools.lru_cache(maxsize=128)  # step studies ask again for the same grids
 def expected_negative_step_fraction(
     params: HestonParams, maturity: float, steps: int, times: int = 33
 ) -> float:

@@ -7,6 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
+from scipy.stats import norm
 
 from .black_scholes import implied_vol_reason
 from .fourier import heston_price
@@ -80,8 +81,6 @@ class Comparison:
 
 def _vega(spot, strike, t, rate, div, vol):
     """Black-Scholes vega (per unit of volatility)."""
-    from scipy.stats import norm
-
     fwd = spot * np.exp((rate - div) * t)
     s = vol * np.sqrt(t)
     d1 = np.log(fwd / strike) / s + 0.5 * s
