@@ -7,8 +7,9 @@ Two independent methods:
   form of Albrecher et al. (2007).  Every maturity's truncation range and
   number of terms are chosen from the model and then *verified*: the
   characteristic function must have decayed below 1e-12 at the last term,
-  and widening both ends of the range by half must not move the extreme and
-  at-the-money prices by more than 1e-10 x spot.  When that cannot be reached the affected
+  and doubling both ends' distance from the mean must not move the extreme
+  and at-the-money prices by more than 1e-10 x spot; the options are then
+  priced on the doubled range.  When that cannot be reached the affected
   options are priced by the check method instead (``fallbacks`` in
   :func:`heston_price_details` says so).
 * ``"quad"`` (check): Lewis's (2001) single integral, integrated adaptively by
@@ -35,7 +36,7 @@ _KINDS = ("call", "put")
 
 #: The characteristic function must be below this at the last COS term.
 CF_TAIL = 1e-12
-#: Allowed change (x spot) when the truncation range is widened by half.
+#: Allowed change (x spot) when both ends of the truncation range are doubled.
 RANGE_TOL = 1e-10
 #: Out-of-the-money prices below this (x spot) give no implied volatility.
 PRICE_FLOOR = 1e-9
@@ -70,30 +71,55 @@ class FourierDetails:
     fallbacks: int
 
 
-def _cf_cutoff(params, maturity, drift):
-    """Frequency beyond which |cf(u)| < CF_TAIL (cf modulus decays in u)."""
+def _cf_cutoffs(params, maturities, drift):
+    """Per maturity, the frequency beyond which |cf(u)| < CF_TAIL (the modulus decays in u)."""
     u = np.geomspace(1e-2, 1e7, 160)
-    mod = np.exp(heston_log_cf(u, params, maturity, drift).real)
-    above = np.nonzero(mod >= CF_TAIL)[0]
-    return float(u[min(above[-1] + 1, u.size - 1)]) if above.size else float(u[0])
+    mod = np.exp(heston_log_cf(u[:, None], params, maturities[None, :], drift).real)
+    above = mod >= CF_TAIL
+    # index of the first grid point past the last one still above the tail level
+    last = np.where(above.any(axis=0), u.size - 1 - np.argmax(above[::-1], axis=0), -1)
+    return u[np.clip(last + 1, 0, u.size - 1)]
+
+
+def _powers(base, count):
+    """``base[:, None] ** arange(count)`` by running products.
+
+    The ``j``-th power carries about ``j`` roundings, so callers keep
+    ``count`` near ``sqrt(N)`` (relative error ~1e-14 at N = 65536).
+    """
+    out = np.empty((base.size, count), dtype=complex)
+    out[:, 0] = 1.0
+    out[:, 1:] = base[:, None]
+    np.cumprod(out[:, 1:], axis=1, out=out[:, 1:])
+    return out
 
 
 def _fourier_sums(angle, coef):
     """``sum_k coef[k, p] exp(i k angle[m])`` for every m and column p.
 
-    Splits ``k = j B + l`` so that only ``M (B + J)`` complex exponentials
-    are taken instead of ``M N``; the rest is one matrix product.
+    Splits ``k = l J + j`` (``J ~ sqrt(N)``): the sum over ``l`` for every
+    ``j`` is one matrix product with the coefficients as stored, and the
+    unit waves are running products of ``M (J + N / J)`` numbers, so only
+    ``2 M`` complex exponentials are taken instead of ``M N``.
     """
     n, cols = coef.shape
-    block = max(1, int(np.ceil(np.sqrt(n))))
-    blocks = -(-n // block)
-    padded = np.zeros((blocks * block, cols), dtype=complex)
+    near_n = max(1, int(np.ceil(np.sqrt(n))))
+    far_n = -(-n // near_n)
+    padded = np.zeros((far_n * near_n, cols), dtype=complex)
     padded[:n] = coef
-    inner_wave = np.exp(1j * np.outer(angle, np.arange(block)))  # (M, B)
-    grouped = padded.reshape(blocks, block, cols).transpose(1, 0, 2).reshape(block, -1)
-    inner = (inner_wave @ grouped).reshape(angle.size, blocks, cols)
-    outer_wave = np.exp(1j * np.outer(angle, block * np.arange(blocks)))  # (M, J)
-    return np.einsum("mj,mjp->mp", outer_wave, inner)
+    near = _powers(np.exp(1j * angle), near_n)  # e^{i j angle}
+    far = _powers(np.exp(1j * near_n * angle), far_n)  # e^{i l J angle}
+    partial = (far @ padded.reshape(far_n, near_n * cols)).reshape(angle.size, near_n, cols)
+    return (near[:, None, :] @ partial)[:, 0, :]
+
+
+def _phases(step, count):
+    """``exp(1j * step * arange(count))`` from about ``2 sqrt(count)`` exponentials."""
+    near_n = max(1, int(np.ceil(np.sqrt(count))))
+    far_n = -(-count // near_n)
+    near = np.exp(1j * step * np.arange(near_n))
+    far = np.exp(1j * step * near_n * np.arange(far_n))
+    return np.multiply.outer(far, near).ravel()[:count]
 
 
 @dataclass(frozen=True)
@@ -104,17 +130,21 @@ class _CosSeries:
     b: float
     omega: np.ndarray
     coef: np.ndarray
+    payoff_coef: np.ndarray  # columns: coef / omega and coef (1 - i omega) / (1 + omega^2)
+    chi_edge: float  # sum of Re of the second column, the chi term at the lower end
 
     @classmethod
-    def build(cls, params, maturity, drift, a, b, u_cut):
-        n = int(np.ceil(u_cut * (b - a) / np.pi)) + 2
-        if n > MAX_TERMS:
-            return None
-        omega = np.arange(n) * np.pi / (b - a)
-        # Re[cf(omega) exp(-i omega a)], folded into one complex exponential
-        coef = np.exp(heston_log_cf(omega, params, maturity, drift) - 1j * a * omega).real
+    def from_cf(cls, a, b, cf, step=1):
+        """Series from ``cf[::step]``, the characteristic function at
+        ``k pi / (b - a)``, ``k = 0, 1, ...`` (``step`` picks a coarser grid)."""
+        cf = cf[::step]
+        omega = np.arange(cf.size) * (np.pi / (b - a))
+        coef = (cf * _phases(-a * np.pi / (b - a), cf.size)).real  # Re[cf e^{-i omega a}]
         coef[0] *= 0.5  # the primed sum halves the first term
-        return cls(a, b, omega, coef)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            y = np.where(omega > 0, coef / omega, 0.0)
+        z = coef * (1.0 - 1j * omega) / (1.0 + omega * omega)
+        return cls(a, b, omega, coef, np.stack([y, z], axis=1), float(z.real.sum()))
 
     def puts(self, log_moneyness, strike):
         """Undiscounted puts ``E[K (1 - e^{x + R})^+]`` with ``x = ln(S_0 / K)``.
@@ -122,58 +152,68 @@ class _CosSeries:
         Payoff coefficients from Fang & Oosterlee (2008), eqs. 22-23, with the
         payoff cut at ``R = -x`` clipped to the range.
         """
-        a, b, omega, coef = self.a, self.b, self.omega, self.coef
+        a, b = self.a, self.b
         cut = np.clip(-log_moneyness, a, b)
-        angle = np.pi * (cut - a) / (b - a)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            y = np.where(omega > 0, coef / omega, 0.0)
-        z = coef * (1.0 - 1j * omega) / (1.0 + omega * omega)
-        sums = _fourier_sums(angle, np.stack([y, z], axis=1))
-        psi_sum = coef[0] * (cut - a) + sums[:, 0].imag
-        chi_sum = np.exp(cut) * sums[:, 1].real - np.exp(a) * z.real.sum()
+        sums = _fourier_sums(np.pi * (cut - a) / (b - a), self.payoff_coef)
+        psi_sum = self.coef[0] * (cut - a) + sums[:, 0].imag
+        chi_sum = np.exp(cut) * sums[:, 1].real - np.exp(a) * self.chi_edge
         return 2.0 / (b - a) * strike * (psi_sum - np.exp(log_moneyness) * chi_sum)
 
 
-def _cos_puts_certified(params, spot, strike, maturity, drift, start=(12.0, 12.0)):
+def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, start=(12.0, 12.0)):
     """Undiscounted puts for one maturity with a verified range, or None.
 
-    The range ``[c1 - left sd, c1 + right sd]`` is accepted when widening
-    both ends by half moves no probed price (lowest, highest and
-    nearest-the-money strike) by more than ``RANGE_TOL x spot``.  Otherwise
-    the end at fault is widened by half and the check repeats: heavy left
-    tails under negative correlation need far more room than the right tail.
-    ``start`` is the first range tried (the previous maturity's answer, since
-    the shape of the law changes slowly with maturity).
+    The range ``[c1 - left sd, c1 + right sd]`` is accepted when doubling
+    both extents (left and right of ``c1``) moves no probed price (lowest,
+    highest and nearest-the-money strike) by more than ``RANGE_TOL x spot``;
+    the strip is then priced on the doubled range.  Otherwise the end at
+    fault is widened by half and the check repeats: heavy left tails under
+    negative correlation need far more room than the right tail.  ``start``
+    is the first range tried (the previous maturity's answer, since the
+    shape of the law changes slowly with maturity).
+
+    The doubled range has twice the width, so its frequencies
+    ``k pi / (2 w)`` contain every frequency of the original range at even
+    ``k``: one evaluation of the characteristic function serves both.
     Returns ``(puts or None, terms, (left, right))``.
     """
-    c1, c2 = log_return_cumulants(params, maturity, drift)
-    sd = float(np.sqrt(c2))
-    u_cut = _cf_cutoff(params, maturity, drift)
     x = np.log(spot / strike)
     probe = np.unique([np.argmin(strike), np.argmax(strike), np.argmin(np.abs(x))])
     tol = RANGE_TOL * spot
 
-    def series(left, right):
-        return _CosSeries.build(params, maturity, drift, c1 - left * sd, c1 + right * sd, u_cut)
+    def pair(left, right):
+        """The series on the range and on its double, or None if too long."""
+        n = int(np.ceil(u_cut * (left + right) * sd / np.pi)) + 2
+        if 2 * n > MAX_TERMS:
+            return None
+        wide_a, wide_b = c1 - 2.0 * left * sd, c1 + 2.0 * right * sd
+        omega = np.arange(2 * n) * (np.pi / (wide_b - wide_a))
+        cf = np.exp(heston_log_cf(omega, params, maturity, drift))
+        wide = _CosSeries.from_cf(wide_a, wide_b, cf)
+        return _CosSeries.from_cf(c1 - left * sd, c1 + right * sd, cf, step=2), wide
 
-    def moved(a, b):
-        return (
-            np.max(np.abs(a.puts(x[probe], strike[probe]) - b.puts(x[probe], strike[probe]))) > tol
-        )
+    def moved(one, other):
+        diff = one.puts(x[probe], strike[probe]) - other.puts(x[probe], strike[probe])
+        return np.max(np.abs(diff)) > tol
 
     left, right = start
-    base = series(left, right)
     for _ in range(16):
-        both = series(1.5 * left, 1.5 * right) if base is not None else None
-        if both is None:
+        series = pair(left, right)
+        if series is None:
             break
-        if not moved(base, both):
-            return base.puts(x, strike), base.omega.size, (left, right)
-        left_only = series(1.5 * left, right)
-        if left_only is not None and moved(base, left_only):
-            left, base = 1.5 * left, left_only
+        base, wide = series
+        if not moved(base, wide):
+            return wide.puts(x, strike), wide.omega.size, (left, right)
+        # which end is at fault: widen the left alone by half and look again
+        n = int(np.ceil(u_cut * (1.5 * left + right) * sd / np.pi)) + 2
+        if n > MAX_TERMS:
+            break
+        a, b = c1 - 1.5 * left * sd, c1 + right * sd
+        cf = np.exp(heston_log_cf(np.arange(n) * (np.pi / (b - a)), params, maturity, drift))
+        if moved(base, _CosSeries.from_cf(a, b, cf)):
+            left = 1.5 * left
         else:
-            right, base = 1.5 * right, series(left, 1.5 * right)
+            right = 1.5 * right
     return None, 0, (left, right)
 
 
@@ -198,10 +238,14 @@ def _scalar(name, value, *rules):
     return arr
 
 
-def _call_from_put(put, forward, strike, discount):
-    """Put-call parity, kept inside the call's no-arbitrage bounds."""
-    call = put + discount * (forward - strike)
-    return np.clip(call, np.maximum(discount * (forward - strike), 0.0), discount * forward)
+def _call_from_put(put, spot_df, strike_df):
+    """Put-call parity ``C = P + S e^{-qT} - K e^{-rT}``, kept inside the call's bounds.
+
+    ``spot_df`` and ``strike_df`` are the discounted spot and strike, the
+    same numbers the bounds are stated in (no rounding gap at the bound).
+    """
+    gap = spot_df - strike_df
+    return np.clip(put + gap, np.maximum(gap, 0.0), spot_df)
 
 
 def heston_price_details(
@@ -217,11 +261,17 @@ def heston_price_details(
     put = np.empty(k_flat.shape)
     terms, widths, fallbacks = {}, {}, 0
     start = (12.0, 12.0)
-    for t in np.unique(t_flat):
+    times = np.unique(t_flat)
+    if method == "cos":
+        c1, c2 = log_return_cumulants(params, times, drift)
+        sd, u_cut = np.sqrt(c2), _cf_cutoffs(params, times, drift)
+    for i, t in enumerate(times):
         sel = t_flat == t
         prices = None
         if method == "cos":
-            prices, n, extent = _cos_puts_certified(params, spot, k_flat[sel], t, drift, start)
+            prices, n, extent = _cos_puts_certified(
+                params, spot, k_flat[sel], t, drift, c1[i], sd[i], u_cut[i], start
+            )
             terms[float(t)], widths[float(t)] = n, extent
             start = extent if prices is not None else start
         if prices is None:
@@ -231,11 +281,10 @@ def heston_price_details(
             prices = (calls - spot * np.exp(-div_yield * t)) * np.exp(rate * t) + k_flat[sel]
         put[sel] = prices
     df = np.exp(-rate * t_flat)
-    fwd = spot * np.exp(drift * t_flat)
+    spot_df, strike_df = spot * np.exp(-div_yield * t_flat), k_flat * df
     put = df * put
-    lower_put = np.maximum(df * (k_flat - fwd), 0.0)
-    put = np.clip(put, lower_put, df * k_flat)
-    price = put if kind == "put" else _call_from_put(put, fwd, k_flat, df)
+    put = np.clip(put, np.maximum(strike_df - spot_df, 0.0), strike_df)
+    price = put if kind == "put" else _call_from_put(put, spot_df, strike_df)
     return FourierDetails(price.reshape(shape), method, terms, widths, fallbacks)
 
 
@@ -281,10 +330,11 @@ def heston_price(
     from put-call parity, which avoids the large-payoff truncation error of
     calls (Fang & Oosterlee 2008, sec. 5).  The range starts at
     ``c1 +- 12 sqrt(c2)`` from the first two cumulants (or the previous
-    maturity's range); the end at fault is widened by half until widening
-    both ends once more changes no probed price (lowest, highest,
-    nearest-the-money strike) by more than 1e-10 x spot; ``N`` is set
-    so the characteristic function has decayed below 1e-12 at the last term.
+    maturity's range); the end at fault is widened by half until doubling
+    both ends' distance from ``c1`` changes no probed price (lowest,
+    highest, nearest-the-money strike) by more than 1e-10 x spot, and the
+    strip is priced on that doubled range; ``N`` is set so the
+    characteristic function has decayed below 1e-12 at the last term.
 
     References
     ----------
@@ -327,7 +377,9 @@ def heston_implied_vol(params, spot, strike, maturity, rate=0.0, div_yield=0.0, 
     )
     forward = spot_ * np.exp((rate_ - div_) * maturity_)
     put = heston_price_details(params, spot_, strike_, maturity_, rate_, div_, "put", method).price
-    call = _call_from_put(put, forward, strike_, np.exp(-rate_ * maturity_))
+    call = _call_from_put(
+        put, spot_ * np.exp(-div_ * maturity_), strike_ * np.exp(-rate_ * maturity_)
+    )
     use_put = strike_ < forward
     vol_put, _ = implied_vol_reason(put, spot_, strike_, maturity_, rate_, div_, "put")
     vol_call, _ = implied_vol_reason(call, spot_, strike_, maturity_, rate_, div_, "call")

@@ -6,6 +6,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 import rootvar.core.fourier as fourier
+import rootvar.core.heston_cf as heston_cf
 from rootvar.core import (
     FourierCheckError,
     HestonParams,
@@ -185,6 +186,29 @@ def test_characteristic_function_has_no_branch_jumps():
     u = np.linspace(0, 40, 40001)
     phi = np.exp(heston_log_cf(u, p, 30.0))
     assert np.max(np.abs(np.diff(phi))) < 1e-2
+
+
+def test_real_form_sqrt_and_log_match_numpy_branches():
+    # Reference: numpy's complex sqrt and log (principal branches), on every
+    # quadrant, the negative real axis from both sides, and |z| near 1.
+    rng = np.random.default_rng(3)
+    z = rng.normal(size=4000) * 10.0 ** rng.uniform(-8, 8, 4000) + 1j * rng.normal(size=4000)
+    z = np.concatenate([z, [-4 + 0j, -4 - 0j, 1 + 1e-12j, -1e-100 + 0j, 0j, 2.0 + 0j]])
+    np.testing.assert_allclose(heston_cf._principal_sqrt(z), np.sqrt(z), rtol=1e-15, atol=0)
+    z = z[z != 0]
+    np.testing.assert_allclose(heston_cf._principal_log(z), np.log(z), rtol=1e-15, atol=1e-15)
+
+
+def test_blocked_fourier_sums_match_the_direct_sum():
+    # Reference: the sum written out with one numpy exponential per term.
+    rng = np.random.default_rng(4)
+    coef = rng.normal(size=(20000, 2)) / np.arange(1, 20001)[:, None] + 0j
+    angle = np.concatenate([[0.0, np.pi], rng.uniform(0, np.pi, 5)])
+    direct = np.exp(1j * np.outer(angle, np.arange(20000))) @ coef
+    assert np.max(np.abs(fourier._fourier_sums(angle, coef) - direct)) < 1e-13
+    # both sides round the argument 0.37 k (up to 7400) differently: ~1e-12
+    phases = fourier._phases(-0.37, 20000)
+    assert np.max(np.abs(phases - np.exp(-0.37j * np.arange(20000)))) < 4e-12
 
 
 def test_uncertifiable_cos_falls_back_to_the_check_method(monkeypatch):
