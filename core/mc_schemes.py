@@ -108,12 +108,25 @@ def _same(x):
 
 
 def _make_qe(p, dt, martingale=False, psi_c=1.5):
-    """Andersen's (2008) quadratic-exponential step, optionally martingale-corrected."""
+    """Andersen's (2008) quadratic-exponential step, optionally martingale-corrected.
+
+    With ``m`` and ``s^2`` the exact conditional mean and variance of
+    ``v(t + dt)`` and ``psi = s^2 / m^2``, the step works with ``r = 2 / psi``
+    (Andersen, eqs. 17-29, rewritten to save divisions):
+
+    * quadratic branch (``psi <= psi_c``): ``v' = a (b + Z)^2`` with
+      ``b^2 = r - 1 + sqrt(r (r - 1))`` and ``a = m / (1 + b^2)``;
+    * exponential branch (``psi > psi_c``): ``v' = 0`` with probability
+      ``p = (psi - 1) / (psi + 1)``, else ``ln((1 - p) / (1 - U)) / beta`` with
+      ``beta = (1 - p) / m``; with ``q = (1 + psi) / 2 = 1 / r + 1/2`` this
+      is ``v' = m q max(0, -ln(q (1 - U)))``.
+    """
     e = np.exp(-p.kappa * dt)
     s2 = p.vol_of_vol**2
-    c1 = s2 * e * (1.0 - e) / p.kappa
-    c2 = p.theta * s2 * (1.0 - e) ** 2 / (2.0 * p.kappa)
+    half_c1 = 0.5 * s2 * e * (1.0 - e) / p.kappa  # s^2 / 2 = half_c1 v + half_c2
+    half_c2 = 0.25 * p.theta * s2 * (1.0 - e) ** 2 / p.kappa
     m_const = p.theta * (1.0 - e)
+    r_c = 2.0 / psi_c
     rho, sig = p.rho, p.vol_of_vol
     # Andersen (2008), eq. (33) with gamma1 = gamma2 = 1/2
     k0 = -rho * p.kappa * p.theta * dt / sig
@@ -128,55 +141,65 @@ def _make_qe(p, dt, martingale=False, psi_c=1.5):
         # One normal for the quadratic branch and one uniform for the
         # exponential branch per path and step (Andersen uses one uniform for
         # both; the branch is fixed by v before the draw, so the law is the
-        # same, and a fresh uniform is cheaper here than Phi(Z)).
+        # same, and a fresh uniform is cheaper here than Phi(Z)).  Both are
+        # drawn on every step, used or not: whether a block consumes draws
+        # must not depend on the other blocks vectorised with it.
         z = draws.normal()
-        # Written with in-place operations on reused buffers: this loop is the
-        # hot path of every QE run (see benchmarks/bench_monte_carlo.py).
+        u = draws.uniform()
+        # Both branches are evaluated on every path with in-place operations
+        # on reused buffers, then the exponential one is copied where psi > psi_c:
+        # this loop is the hot path of every QE run, and whole-array passes
+        # cost less here than gathering the exponential paths (measured with
+        # benchmarks/bench_monte_carlo.py).
         if v.size not in work:
-            work[v.size] = [np.empty(v.size) for _ in range(6)]
-        m, psi, a, b2, out0, out1 = work[v.size]
+            work[v.size] = [np.empty(v.size) for _ in range(7)] + [np.empty(v.size, bool)]
+        m, r, b2, q, expo, out0, out1, hot = work[v.size]
         new = out1 if v is out0 else out0  # never overwrite the input variance
         np.multiply(v, e, out=m)
         m += m_const
-        np.multiply(v, c1, out=psi)
-        psi += c2
-        np.multiply(m, m, out=a)
-        psi /= a
-        # quadratic branch on every path (psi clipped so it is defined), the
-        # exponential branch then overwrites the paths with psi > psi_c:
-        # b^2 = 2/psi - 1 + sqrt(2/psi (2/psi - 1)),  a = m / (1 + b^2)
-        np.minimum(psi, psi_c, out=a)
-        np.divide(2.0, a, out=a)
-        np.subtract(a, 1.0, out=b2)
-        np.multiply(a, b2, out=new)
-        np.sqrt(new, out=new)
-        b2 += new
+        np.multiply(v, half_c1, out=q)
+        q += half_c2
+        np.multiply(m, m, out=r)
+        r /= q  # r = 2 / psi
+        np.less(r, r_c, out=hot)
+        # quadratic branch, psi clipped at psi_c so that it is defined
+        np.maximum(r, r_c, out=b2)
+        np.subtract(b2, 1.0, out=q)
+        b2 *= q
+        np.sqrt(b2, out=b2)
+        b2 += q  # b^2
         np.sqrt(b2, out=new)
         new += z
         new *= new
-        np.add(b2, 1.0, out=a)
-        np.divide(m, a, out=a)
-        new *= a
-        hot = np.flatnonzero(psi > psi_c)
-        if hot.size:
-            ph = psi[hot]
-            pz = (ph - 1.0) / (ph + 1.0)
-            beta = (1.0 - pz) / m[hot]
-            u = draws.uniform()[hot]
-            zero = u <= pz
-            with np.errstate(divide="ignore", invalid="ignore"):
-                new[hot] = np.where(zero, 0.0, np.log((1.0 - pz) / (1.0 - u)) / beta)
-            acc.touched[hot[zero]] = True
+        new *= m
+        b2 += 1.0  # now 1 + b^2
+        new /= b2
+        # exponential branch
+        np.divide(1.0, r, out=q)
+        q += 0.5
+        np.subtract(1.0, u, out=expo)
+        expo *= q
+        # a uniform of exactly 0 (or 1, mirrored) must not reach the logarithm
+        np.maximum(expo, 1e-300, out=expo)
+        np.log(expo, out=expo)
+        np.negative(expo, out=expo)
+        np.maximum(expo, 0.0, out=expo)
+        expo *= q
+        expo *= m
+        np.copyto(new, expo, where=hot)
+        acc.touched |= hot & (expo == 0.0)
         if martingale:
             # Andersen (2008), eqs. (36)-(37): K0* replaces K0 so that
             # E[exp(dx)] = exp((r - q) dt) exactly under the QE law.
+            a = m / b2
             with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
                 one = 1.0 - 2.0 * big_a * a
-                k0_star = -big_a * b2 * a / one + 0.5 * np.log(one)
+                k0_star = -big_a * (b2 - 1.0) * a / one + 0.5 * np.log(one)
                 ok = one > 0
-                if hot.size:
-                    k0e = -np.log(pz + beta * (1.0 - pz) / (beta - big_a))
-                    k0_star[hot] = k0e
+                if hot.any():
+                    qh, mh = q[hot], m[hot]
+                    pz, beta = 1.0 - 1.0 / qh, 1.0 / (qh * mh)
+                    k0_star[hot] = -np.log(pz + beta * (1.0 - pz) / (beta - big_a))
                     ok[hot] = beta > big_a
             k0_star -= (k1 + 0.5 * k3) * v
             ok &= np.isfinite(k0_star)

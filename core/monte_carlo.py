@@ -4,9 +4,9 @@ Seeding scheme (what makes results depend only on inputs and seed):
 paths are cut into fixed blocks of :data:`BLOCK` paths; block ``j`` draws
 every random number it ever uses from its own generator
 ``numpy.random.Generator(SFC64(SeedSequence(seed).spawn(n_blocks)[j]))``, in
-a fixed order (one variance draw per step, then the terminal log-price
-normal).  Chunks only decide how many blocks are vectorised together, and
-block sums are added in block order, so neither the chunk size nor the
+a fixed order (each step's variance draws, the same kinds on every step,
+then the terminal log-price normal).  Chunks only decide how many blocks are
+vectorised together, and block sums are added in block order, so neither the chunk size nor the
 number of workers changes a single bit of the result.  SFC64 is numpy's
 fastest bit generator here (normal draws dominate the cost of a step) and
 passes the same statistical test batteries as the default PCG64.
@@ -84,19 +84,23 @@ class _Draws:
         for gen, size in zip(self.gens, self.sizes, strict=True):
             if self.anti:
                 half = (size + 1) // 2
-                first = draw(gen, half)
-                out[start : start + half] = first
-                out[start + half : start + size] = mirror(first[: size - half])
+                first = out[start : start + half]
+                draw(gen, first)
+                mirror(first[: size - half], out=out[start + half : start + size])
             else:
-                out[start : start + size] = draw(gen, size)
+                draw(gen, out[start : start + size])
             start += size
         return out
 
     def normal(self):
-        return self._fill(self._normal, lambda g, n: g.standard_normal(n), np.negative)
+        return self._fill(self._normal, lambda g, out: g.standard_normal(out=out), np.negative)
 
     def uniform(self):
-        return self._fill(self._uniform, lambda g, n: g.random(n), lambda u: 1.0 - u)
+        return self._fill(
+            self._uniform,
+            lambda g, out: g.random(out=out),
+            lambda u, out: np.subtract(1.0, u, out=out),
+        )
 
     def noncentral_chisquare(self, df, nonc):
         out = np.empty(self.n)

@@ -33,6 +33,17 @@ def test_result_depends_on_seed_not_on_chunk_size(scheme):
     assert not np.array_equal(a.price, d.price)
 
 
+@pytest.mark.parametrize("scheme", ["qe", "qe_martingale"])
+def test_chunk_size_invariance_when_the_exponential_branch_is_rare(scheme):
+    # QE's exponential branch (psi > 1.5) hit on some blocks and not on others
+    # in the same step: every block must still consume the same draws.
+    p = HestonParams(v0=0.04, kappa=3.0, theta=0.04, vol_of_vol=0.6, rho=-0.5)
+    args = dict(scheme=scheme, steps=4, paths=8 * BLOCK, seed=5)
+    a = mc_price(p, 100, 100.0, 1.0, chunk_paths=BLOCK, **args)
+    b = mc_price(p, 100, 100.0, 1.0, chunk_paths=8 * BLOCK, **args)
+    assert a.price == b.price
+
+
 def test_result_carries_what_was_asked_and_a_95_percent_interval():
     r = mc_price(FO, 100, 100.0, 1.0, scheme="qe", steps=8, paths=20_000, seed=7)
     assert isinstance(r.price, float) and r.scheme == "qe" and r.steps == 8
