@@ -192,9 +192,9 @@ def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, st
         wide = _CosSeries.from_cf(wide_a, wide_b, cf)
         return _CosSeries.from_cf(c1 - left * sd, c1 + right * sd, cf, step=2), wide
 
-    def moved(one, other):
-        diff = one.puts(x[probe], strike[probe]) - other.puts(x[probe], strike[probe])
-        return np.max(np.abs(diff)) > tol
+    def moved(series, reference):
+        """Whether ``series`` misses the probed ``reference`` prices."""
+        return np.max(np.abs(series.puts(x[probe], strike[probe]) - reference)) > tol
 
     left, right = start
     for _ in range(16):
@@ -202,15 +202,16 @@ def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, st
         if series is None:
             break
         base, wide = series
-        if not moved(base, wide):
-            return wide.puts(x, strike), wide.omega.size, (left, right)
+        puts = wide.puts(x, strike)  # the strip is wanted on the wide range anyway
+        if not moved(base, puts[probe]):
+            return puts, wide.omega.size, (left, right)
         # which end is at fault: widen the left alone by half and look again
         n = int(np.ceil(u_cut * (1.5 * left + right) * sd / np.pi)) + 2
         if n > MAX_TERMS:
             break
         a, b = c1 - 1.5 * left * sd, c1 + right * sd
         cf = np.exp(heston_log_cf(np.arange(n) * (np.pi / (b - a)), params, maturity, drift))
-        if moved(base, _CosSeries.from_cf(a, b, cf)):
+        if moved(_CosSeries.from_cf(a, b, cf), base.puts(x[probe], strike[probe])):
             left = 1.5 * left
         else:
             right = 1.5 * right
