@@ -196,11 +196,12 @@ def _make_qe(p, dt, martingale=False, psi_c=1.5):
                 one = 1.0 - 2.0 * big_a * a
                 k0_star = -big_a * (b2 - 1.0) * a / one + 0.5 * np.log(one)
                 ok = one > 0
-                if hot.any():
-                    qh, mh = q[hot], m[hot]
-                    pz, beta = 1.0 - 1.0 / qh, 1.0 / (qh * mh)
-                    k0_star[hot] = -np.log(pz + beta * (1.0 - pz) / (beta - big_a))
-                    ok[hot] = beta > big_a
+                idx = np.flatnonzero(hot)
+                if idx.size:
+                    qh = q[idx]
+                    pz, beta = 1.0 - 1.0 / qh, 1.0 / (qh * m[idx])
+                    k0_star[idx] = -np.log(pz + beta * (1.0 - pz) / (beta - big_a))
+                    ok[idx] = beta > big_a
             k0_star -= (k1 + 0.5 * k3) * v
             ok &= np.isfinite(k0_star)
             # where the correction does not exist the step stays uncorrected
