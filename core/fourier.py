@@ -57,8 +57,9 @@ class FourierDetails:
     terms : dict
         Maturity (years) -> number of COS terms used.
     half_width : dict
-        Maturity -> (left, right) extent of the truncation range around the
-        mean, in standard deviations of ln(S_T / S_0).
+        Maturity -> (left, right) extent of the certified truncation range
+        around the mean, in standard deviations of ln(S_T / S_0); prices
+        come from the range with both extents doubled.
     fallbacks : int
         Number of options the COS method could not certify and that were
         priced by the check method.
@@ -85,7 +86,7 @@ def _powers(base, count):
     """``base[:, None] ** arange(count)`` by running products.
 
     The ``j``-th power carries about ``j`` roundings, so callers keep
-    ``count`` near ``sqrt(N)`` (relative error ~1e-14 at N = 65536).
+    ``count`` near ``sqrt(N)`` (relative error a few 1e-14 at N = 65536).
     """
     out = np.empty((base.size, count), dtype=complex)
     out[:, 0] = 1.0
