@@ -5,8 +5,9 @@ Two independent methods:
 * ``"cos"`` (default): the COS method of Fang & Oosterlee (2008), priced
   through puts and put-call parity, on the characteristic function in the
   form of Albrecher et al. (2007).  Every maturity's truncation range and
-  number of terms are chosen from the model and then *verified*: the
-  characteristic function must have decayed below 1e-12 at the last term,
+  number of terms are chosen from the model and then *verified*: the terms
+  left out past the last one are bounded by 1e-11 x spot (from the decay of
+  the characteristic function and a bound on the payoff coefficients),
   and doubling both ends' distance from the mean must not move the extreme
   and at-the-money prices by more than 1e-10 x spot; the options are then
   priced on the doubled range.  When that cannot be reached the affected
@@ -34,8 +35,8 @@ __all__ = ["FourierDetails", "heston_implied_vol", "heston_price", "heston_price
 _METHODS = ("cos", "quad")
 _KINDS = ("call", "put")
 
-#: The characteristic function must be below this at the last COS term.
-CF_TAIL = 1e-12
+#: Bound (x spot) on the COS terms left out past the last one (see ``_cf_cutoffs``).
+SERIES_TOL = 1e-11
 #: Allowed change (x spot) when both ends of the truncation range are doubled.
 RANGE_TOL = 1e-10
 #: Out-of-the-money prices below this (x spot) give no implied volatility.
@@ -72,12 +73,20 @@ class FourierDetails:
     fallbacks: int
 
 
-def _cf_cutoffs(params, maturities, drift):
-    """Per maturity, the frequency beyond which |cf(u)| < CF_TAIL (the modulus decays in u)."""
+def _cf_cutoffs(params, maturities, drift, max_strike, spot):
+    """Per maturity, the frequency beyond which the dropped COS terms are negligible.
+
+    For the put payoff ``K (1 - e^y)^+`` two integrations by parts bound the
+    cosine coefficients on a range of width ``w`` by
+    ``|V_k| <= 4 K w / (k pi)^2``, so the terms past ``N = u* w / pi`` add at
+    most ``|cf(u*)| 4 K / (pi u*)`` whatever the range, as long as ``|cf|``
+    does not grow again past ``u*`` (checked on a grid up to 1e7).  ``u*`` is
+    the first grid point after which that bound stays below ``SERIES_TOL x spot``.
+    """
     u = np.geomspace(1e-2, 1e7, 160)
     mod = np.exp(heston_log_cf(u[:, None], params, maturities[None, :], drift).real)
-    above = mod >= CF_TAIL
-    # index of the first grid point past the last one still above the tail level
+    above = mod * (4.0 * max_strike / (np.pi * u[:, None])) >= SERIES_TOL * spot
+    # index of the first grid point past the last one still above the tolerance
     last = np.where(above.any(axis=0), u.size - 1 - np.argmax(above[::-1], axis=0), -1)
     return u[np.clip(last + 1, 0, u.size - 1)]
 
@@ -266,7 +275,8 @@ def heston_price_details(
     times = np.unique(t_flat)
     if method == "cos":
         c1, c2 = log_return_cumulants(params, times, drift)
-        sd, u_cut = np.sqrt(c2), _cf_cutoffs(params, times, drift)
+        sd = np.sqrt(c2)
+        u_cut = _cf_cutoffs(params, times, drift, float(k_flat.max()), spot)
     for i, t in enumerate(times):
         sel = t_flat == t
         prices = None
@@ -335,8 +345,9 @@ def heston_price(
     maturity's range); the end at fault is widened by half until doubling
     both ends' distance from ``c1`` changes no probed price (lowest,
     highest, nearest-the-money strike) by more than 1e-10 x spot, and the
-    strip is priced on that doubled range; ``N`` is set so the
-    characteristic function has decayed below 1e-12 at the last term.
+    strip is priced on that doubled range; ``N`` is set so the terms left
+    out add at most 1e-11 x spot, from ``|V_k| <= 4 K (b - a) / (k pi)^2``
+    and the decay of the characteristic function.
 
     References
     ----------

@@ -211,6 +211,23 @@ def test_blocked_fourier_sums_match_the_direct_sum():
     assert np.max(np.abs(phases - np.exp(-0.37j * np.arange(20000)))) < 4e-12
 
 
+@pytest.mark.parametrize("series_tol", [1e-4, 1e-6])
+def test_series_truncation_bound_holds_when_loosened(monkeypatch, series_tol):
+    # The bound on the COS terms left out (two integrations by parts of the
+    # put payoff, Fang & Oosterlee 2008 sec. 4 for the error terms) must hold
+    # for a loose tolerance too, judged by the independent check method.
+    k = np.array([40.0, 70.0, 100.0, 150.0, 300.0])
+    for p, t in [(ANDERSEN_I, 0.25), (FO, 1 / 365), (FO, 5.0)]:
+        tight = heston_price_details(p, 100, k, t)
+        with monkeypatch.context() as patch:
+            patch.setattr(fourier, "SERIES_TOL", series_tol)
+            patch.setattr(fourier, "RANGE_TOL", series_tol)
+            loose = heston_price_details(p, 100, k, t)
+        assert loose.terms[t] < tight.terms[t]  # the bound is what sets N
+        err = np.max(np.abs(loose.price - lewis_call_price(p, 100, k, t)))
+        assert err <= series_tol * 100, (p, t, err)
+
+
 def test_uncertifiable_cos_falls_back_to_the_check_method(monkeypatch):
     monkeypatch.setattr(fourier, "MAX_TERMS", 8)
     details = heston_price_details(FO, 100, [90.0, 110.0], 1.0)
