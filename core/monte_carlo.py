@@ -6,8 +6,8 @@ every random number it ever uses from its own generator
 ``numpy.random.Generator(SFC64(SeedSequence(seed).spawn(n_blocks)[j]))``, in
 a fixed order (each step's variance draws, the same kinds on every step,
 then the terminal log-price normal).  Chunks only decide how many blocks are
-vectorised together, and block sums are added in block order, so neither the chunk size nor the
-number of workers changes a single bit of the result.  SFC64 is numpy's
+vectorised together, and block sums are added in block order, so neither
+the chunk size nor the number of workers changes a single bit of the result.  SFC64 is numpy's
 fastest bit generator here (normal draws dominate the cost of a step) and
 passes the same statistical test batteries as the default PCG64.
 """
