@@ -178,10 +178,7 @@ def _make_qe(p, dt, martingale=False, psi_c=1.5):
         np.divide(1.0, r, out=q)
         q += 0.5
         np.subtract(1.0, u, out=expo)
-        expo *= q
-        # 1 - U is 0 only for the antithetic mirror of a draw of exactly 0:
-        # keep it off the logarithm
-        np.maximum(expo, 1e-300, out=expo)
+        expo *= q  # 1 - U is in (0, 1], also for mirrored draws
         np.log(expo, out=expo)
         np.negative(expo, out=expo)
         np.maximum(expo, 0.0, out=expo)

@@ -33,6 +33,8 @@ __all__ = ["BLOCK", "DEFAULT_SEED", "MCResult", "expected_negative_step_fraction
 BLOCK = 4096
 #: Seed used when none is given.
 DEFAULT_SEED = 20240601
+#: Largest double numpy's ``Generator.random`` returns, 1 - 2^-53.
+_LAST_UNIFORM = 1.0 - 2.0**-53
 #: Two-sided 95% normal quantile for the confidence interval.
 Z95 = 1.959963984540054
 
@@ -96,10 +98,13 @@ class _Draws:
         return self._fill(self._normal, lambda g, out: g.standard_normal(out=out), np.negative)
 
     def uniform(self):
+        # numpy's doubles are k 2^-53, k = 0 .. 2^53 - 1; the mirror takes k to
+        # 2^53 - 1 - k exactly, so mirrored draws stay in [0, 1) like the
+        # originals and 1 - U is never 0
         return self._fill(
             self._uniform,
             lambda g, out: g.random(out=out),
-            lambda u, out: np.subtract(1.0, u, out=out),
+            lambda u, out: np.subtract(_LAST_UNIFORM, u, out=out),
         )
 
     def noncentral_chisquare(self, df, nonc):

@@ -104,6 +104,18 @@ def test_confidence_interval_covers_fourier_at_nominal_rate():
     assert 88 <= hits <= 100
 
 
+def test_mirrored_uniforms_pair_exactly_and_stay_below_one():
+    # numpy's Generator.random returns k 2^-53 (numpy docs, "random"); the
+    # antithetic mirror must map that grid onto itself, 0 included.
+    gen = np.random.Generator(np.random.SFC64(9))
+    draws = _Draws([gen], [BLOCK], True)
+    u = draws.uniform()
+    first, mirrored = u[: BLOCK // 2], u[BLOCK // 2 :]
+    assert np.all(first + mirrored == 1.0 - 2.0**-53)
+    assert np.all((mirrored >= 0.0) & (mirrored < 1.0))
+    assert np.all(np.ldexp(mirrored, 53) == np.round(np.ldexp(mirrored, 53)))
+
+
 @pytest.mark.parametrize("v0", [0.04, 0.0005])  # quadratic branch, exponential branch
 def test_qe_one_step_matches_the_exact_law_first_two_moments(v0):
     # Andersen (2008), sec. 3.2.3: the QE draw is built to match the exact
