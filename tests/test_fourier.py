@@ -108,6 +108,23 @@ def test_methods_agree_over_the_hard_box():
     assert worst <= 1e-6 * 100
 
 
+def test_strikes_beyond_the_range_still_see_the_tail():
+    # Found by a wider seeded sweep of the hard box: 8 days, vol_of_vol 1.5,
+    # v0 1e-4.  The near-the-money put is 28 standard deviations out of the
+    # money and worth about 4e-4 through the fat left tail; a range that does
+    # not reach its strike prices it at 0 on the range and on its double.
+    # Reference: the adaptive check method (independent code).
+    p = HestonParams(v0=1.0354e-4, kappa=0.13111, theta=0.0068699, vol_of_vol=1.53123, rho=-0.62404)
+    k = np.array([96.07697517, 34.34342097, 54.54793029])
+    t, r, q = 0.0228973, 0.0656823, 0.0049959
+    for kind in ("call", "put"):
+        fast = heston_price(p, 100, k, t, r, q, kind=kind)
+        check = heston_price(p, 100, k, t, r, q, kind=kind, method="quad")
+        np.testing.assert_allclose(fast, check, rtol=0, atol=1e-8 * 100)
+    put = heston_price(p, 100, 96.07697517, t, r, q, kind="put")
+    assert put > 1e-4  # the tail value the old range missed
+
+
 @pytest.mark.parametrize("t", [0.1, 1.0, 5.0])
 @pytest.mark.parametrize("params", [FO, BROADIE_KAYA, LEWIS])
 def test_methods_agree_tightly_on_ordinary_cases(params, t):
