@@ -1,5 +1,7 @@
 """Heston Fourier prices: published values, the two methods, identities, bad input."""
 
+import itertools
+
 import numpy as np
 import pytest
 from hypothesis import given, settings
@@ -16,6 +18,7 @@ from rootvar.core import (
     heston_price,
     heston_price_details,
     lewis_call_price,
+    mc_price,
 )
 from rootvar.core.heston_cf import heston_log_cf
 
@@ -106,6 +109,53 @@ def test_methods_agree_over_the_hard_box():
         check = lewis_call_price(p, 100, k, t, r, q)
         worst = max(worst, float(np.max(np.abs(fast - check))))
     assert worst <= 1e-6 * 100
+
+
+def test_hard_box_corners_agree_with_the_check_method():
+    # Identity test on every corner of the hard box (2^6 parameter corners x
+    # 1 day and 30 years, strikes 0.3 to 3 x forward), target 1e-6 x spot.
+    # At six 1-day corners (vol_of_vol 2, rho +-0.99, v0 1e-4) the adaptive
+    # check itself cannot converge and says so; the next test covers them.
+    corners = itertools.product(
+        [1 / 365, 30.0], [0.05, 2.0], [1e-4, 1.0], [-0.99, 0.99], [0.05, 10.0], [0.005, 0.5]
+    )
+    unchecked = 0
+    for t, sigma, v0, rho, kappa, theta in corners:
+        p = HestonParams(v0, kappa, theta, sigma, rho)
+        k = 100 * np.exp(0.02 * t) * np.array([0.3, 0.9, 1.0, 1.1, 3.0])
+        fast = heston_price(p, 100, k, t, 0.03, 0.01)
+        try:
+            check = lewis_call_price(p, 100, k, t, 0.03, 0.01)
+        except FourierCheckError:
+            unchecked += 1
+            continue
+        np.testing.assert_allclose(fast, check, rtol=0, atol=1e-6 * 100, err_msg=f"{p}, {t}")
+    assert unchecked <= 6
+
+
+@pytest.mark.parametrize("theta", [0.005, 0.5])
+def test_one_day_corner_agrees_with_exact_variance_monte_carlo(theta):
+    # Where the check method gives up (1 day, vol_of_vol 2, rho -0.99,
+    # v0 1e-4): exact variance sampling with conditioning (Broadie & Kaya
+    # 2006; Willard 1997), 64 steps within the day, as the outside reference.
+    p = HestonParams(v0=1e-4, kappa=0.05, theta=theta, vol_of_vol=2.0, rho=-0.99)
+    t, k = 1 / 365, np.array([95.0, 100.0, 103.0])
+    fast = heston_price(p, 100, k, t, 0.03, 0.01)
+    mc = mc_price(
+        p,
+        100,
+        k,
+        t,
+        0.03,
+        0.01,
+        scheme="exact_variance",
+        steps=64,
+        paths=100_000,
+        conditional=True,
+        seed=11,
+    )
+    assert mc.std_error[1] < 1e-5  # at the money, where the price is 1e-2
+    assert np.all(np.abs(fast - mc.price) <= 4 * mc.std_error + 1e-7)
 
 
 def test_strikes_beyond_the_range_still_see_the_tail():
