@@ -9,8 +9,9 @@ Two independent methods:
   left out past the last one are bounded by 1e-11 x spot (from the decay of
   the characteristic function and a bound on the payoff coefficients),
   and doubling both ends' distance from the mean must not move the extreme
-  and at-the-money prices by more than 1e-10 x spot; the options are then
-  priced on the doubled range.  When that cannot be reached the affected
+  and at-the-money prices by more than 1e-10 x spot, nor leave strikes past
+  its ends with more than that in tail mass times strike; the options are
+  then priced on the doubled range.  When that cannot be reached the affected
   options are priced by the check method instead (``fallbacks`` in
   :func:`heston_price_details` says so).
 * ``"quad"`` (check): Lewis's (2001) single integral, integrated adaptively by
