@@ -393,8 +393,9 @@ def heston_price(
     ``c1 +- 12 sqrt(c2)`` from the first two cumulants (or the previous
     maturity's range); the end at fault is widened by half until doubling
     both ends' distance from ``c1`` changes no probed price (lowest,
-    highest, nearest-the-money strike) by more than 1e-10 x spot, and the
-    strip is priced on that doubled range; ``N`` is set so the terms left
+    highest, nearest-the-money strike) by more than 1e-10 x spot and the
+    tail mass past each end, times the largest strike beyond it, stays
+    below that too; the strip is priced on that doubled range; ``N`` is set so the terms left
     out add at most 1e-11 x spot, from ``|V_k| <= 4 K (b - a) / (k pi)^2``
     and the decay of the characteristic function.
 
