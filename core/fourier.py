@@ -255,13 +255,14 @@ def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, st
         if series is None:
             break
         base, wide = series
-        puts = wide.puts(x, strike)  # the strip is wanted on the wide range anyway
         err_left, err_right = outside_error(wide, base.a, base.b)
         if err_left > tol or err_right > tol:
             left *= 1.5 if err_left > tol else 1.0
             right *= 1.5 if err_right > tol else 1.0
             continue
-        if np.max(np.abs(base.puts(x[probe], strike[probe]) - puts[probe])) <= tol:
+        puts = wide.puts(x, strike)  # the strip is wanted on the wide range anyway
+        base_probe = base.puts(x[probe], strike[probe])
+        if np.max(np.abs(base_probe - puts[probe])) <= tol:
             return puts, wide.omega.size, (left, right)
         # which end is at fault: widen the left alone by half and look again
         n = int(np.ceil(u_cut * (1.5 * left + right) * sd / np.pi)) + 2
@@ -270,7 +271,7 @@ def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, st
         a, b = c1 - 1.5 * left * sd, c1 + right * sd
         cf = _cf_values(np.arange(n) * (np.pi / (b - a)), params, maturity, drift)
         wider = _CosSeries.from_cf(a, b, cf).puts(x[probe], strike[probe])
-        if np.max(np.abs(wider - base.puts(x[probe], strike[probe]))) > tol:
+        if np.max(np.abs(wider - base_probe)) > tol:
             left = 1.5 * left
         else:
             right = 1.5 * right
