@@ -231,9 +231,13 @@ def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, st
     probe = np.unique([np.argmin(strike), np.argmax(strike), np.argmin(np.abs(x))])
     tol = RANGE_TOL * spot
 
+    def terms(left, right):
+        """Terms that take a range of ``left + right`` sd up to frequency ``u_cut``."""
+        return int(np.ceil(u_cut * (left + right) * sd / np.pi)) + 2
+
     def pair(left, right):
         """The series on the range and on its double, or None if too long."""
-        n = int(np.ceil(u_cut * (left + right) * sd / np.pi)) + 2
+        n = terms(left, right)
         if 2 * n > MAX_TERMS:
             return None
         wide_a, wide_b = c1 - 2.0 * left * sd, c1 + 2.0 * right * sd
@@ -265,7 +269,7 @@ def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, st
         if np.max(np.abs(base_probe - puts[probe])) <= tol:
             return puts, wide.omega.size, (left, right)
         # which end is at fault: widen the left alone by half and look again
-        n = int(np.ceil(u_cut * (1.5 * left + right) * sd / np.pi)) + 2
+        n = terms(1.5 * left, right)
         if n > MAX_TERMS:
             break
         a, b = c1 - 1.5 * left * sd, c1 + right * sd
