@@ -21,6 +21,31 @@ from rootvar.core import (
 from .cli_text import CAUTION
 from .demo_desk import DESK_NAME, demo_models
 
+#: Exit codes shared by every command (see ``rootvar refresh --help``).
+EXIT_INTERNAL, EXIT_INTERRUPTED = 4, 130
+
+
+def positive_int(text: str) -> int:
+    """argparse type: a whole number >= 1."""
+    try:
+        value = int(text)
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(f"must be a whole number >= 1, got {text!r}") from exc
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"must be a whole number >= 1, got {text!r}")
+    return value
+
+
+def non_negative_float(text: str) -> float:
+    """argparse type: a finite number >= 0."""
+    try:
+        value = float(text)
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(f"must be a number >= 0, got {text!r}") from exc
+    if not (value >= 0 and value != float("inf")):
+        raise argparse.ArgumentTypeError(f"must be a number >= 0, got {text!r}")
+    return value
+
 
 def _floats(text: str) -> list[float]:
     try:
@@ -95,11 +120,21 @@ def _cmd_refresh(args) -> int:
 
     try:
         outcome = refresh(
-            args.workbook, args.as_of, args.out, args.workers, args.scheduler, quiet=args.quiet
+            args.workbook,
+            args.as_of,
+            args.out,
+            args.workers,
+            args.scheduler,
+            quiet=args.quiet,
+            history=args.history,
+            wait=args.wait,
         )
     except ControlError as exc:
         print(f"rootvar refresh: {exc}; nothing was written", file=sys.stderr)
         return EXIT_FILE
+    except KeyboardInterrupt:
+        print("rootvar refresh: interrupted; nothing was written", file=sys.stderr)
+        return EXIT_INTERRUPTED
     for note in outcome.notes:
         print(f"rootvar refresh: {note}", file=sys.stderr)
     if not args.quiet:
@@ -107,9 +142,35 @@ def _cmd_refresh(args) -> int:
         print(
             f"\nwritten to {outcome.output}"
             + (f" (previous file kept as {outcome.backup})" if outcome.backup else "")
+            + f"; history recorded in {outcome.store}"
         )
         print(CAUTION)
     return outcome.exit_code
+
+
+def _cmd_history(args) -> int:
+    from .control import ControlError
+    from .control.history_export import history_frame, open_history, text_table, write_export
+
+    try:
+        store, book = open_history(args.source, args.book)
+        frame = history_frame(store, book, args.model, args.since)
+        store.dispose()
+        if args.out:
+            out = Path(args.out)
+            if not out.parent.is_dir():
+                raise ControlError(f"--out folder {out.parent} does not exist")
+            write_export(frame, out, by_option=args.model is not None)
+            print(f"{len(frame)} rows written to {out}")
+        else:
+            print(text_table(frame))
+    except ControlError as exc:
+        print(f"rootvar history: {exc}", file=sys.stderr)
+        return 2
+    except OSError as exc:
+        print(f"rootvar history: {exc.filename or ''}: {exc.strerror or exc}", file=sys.stderr)
+        return 2
+    return 0
 
 
 def _cmd_build(args) -> int:
@@ -191,28 +252,56 @@ def build_parser() -> argparse.ArgumentParser:
         "refresh",
         help="refresh the daily control workbook (all models, headless)",
         formatter_class=argparse.RawDescriptionHelpFormatter,
-        description="Checks every model of the control workbook and writes the Results and "
-        "History sheets.",
+        description="Checks every model of the control workbook, records the rows in the "
+        "history store and writes the Results sheet and the History window.",
         epilog="exit codes:\n  0  all clear\n  1  breaches or undecided checks found\n"
-        "  2  input or file error: nothing was written\n"
-        "  3  some rows failed (input errors or failed checks); the rest were written",
+        "  2  input, file, lock or store error: nothing was written\n"
+        "  3  some rows failed (input errors or failed checks); the rest were written\n"
+        "  4  unexpected internal error: nothing was written (please report it)\n"
+        "  130  interrupted: nothing was written",
     )
     ref.add_argument("workbook")
     ref.add_argument("--as-of", default=None, help="as-of date, YYYY-MM-DD (default today)")
     ref.add_argument("--out", default=None, help="write here instead of refreshing in place")
     ref.add_argument(
         "--workers",
-        type=int,
+        type=positive_int,
         default=os.cpu_count() or 1,
-        help="local worker processes (default: all cores)",
+        help="local worker processes, >= 1 (default: all cores)",
     )
     ref.add_argument(
         "--scheduler",
         default=None,
         help="address of a Dask distributed scheduler (needs rootvar[cluster])",
     )
+    ref.add_argument(
+        "--history",
+        default=None,
+        help="history store: a SQLAlchemy URL (postgresql+psycopg://...) or a SQLite file "
+        "(default: the Settings sheet's 'history store', else NAME.history.sqlite beside it)",
+    )
+    ref.add_argument(
+        "--wait",
+        type=non_negative_float,
+        default=600.0,
+        help="seconds to wait for another refresh of the same workbook (default 600)",
+    )
     ref.add_argument("--quiet", action="store_true", help="no progress, no summary (schedulers)")
     ref.set_defaults(func=_cmd_refresh)
+
+    hist = sub.add_parser(
+        "history",
+        help="show or export the control history store, with a trend chart",
+        description="Rows of the history store of a control workbook (or of a store URL). "
+        "With --out FILE.xlsx a Trend sheet charts MC minus Fourier in vol bp per model "
+        "(per option with --model).",
+    )
+    hist.add_argument("source", help="control workbook, SQLite store file or store URL")
+    hist.add_argument("--book", default=None, help="book name in a shared store")
+    hist.add_argument("--model", default=None, help="one model id")
+    hist.add_argument("--since", default=None, help="first as-of date, YYYY-MM-DD")
+    hist.add_argument("--out", default=None, help="FILE.csv or FILE.xlsx (default: print)")
+    hist.set_defaults(func=_cmd_history)
     return parser
 
 
@@ -225,6 +314,12 @@ def main(argv=None) -> int:
     except InputError as exc:
         print(f"rootvar: {exc}", file=sys.stderr)
         return 2
+    except KeyboardInterrupt:
+        print("rootvar: interrupted", file=sys.stderr)
+        return EXIT_INTERRUPTED
+    except Exception as exc:  # a crash must never read as "clear" (0) or "breaches" (1)
+        print(f"rootvar: internal error, please report it: {exc!r}", file=sys.stderr)
+        return EXIT_INTERNAL
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -17,15 +17,19 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .black_scholes import bs_price, implied_vol_reason
 from .cir_law import cir_transition
 from .mc_schemes import SCHEMES
 from .monte_carlo import mc_price
 from .params import HestonParams
 from .validation import InputError
 from .variance import euler_max_step, euler_negative_probability, feller_ratio, regime_label
-from .verdict import BIASED, CONSISTENT, UNDECIDED, compare_mc_fourier, step_study
+from .verdict import BIASED, UNDECIDED, compare_mc_fourier, step_study
 
-__all__ = ["ControlSettings", "ModelSpec", "check_model", "row_seed"]
+__all__ = ["CHECK_FAILED", "ControlSettings", "ModelSpec", "check_model", "row_seed"]
+
+#: Verdict of a test option whose Monte Carlo check could not be formed.
+CHECK_FAILED = "check failed"
 
 
 @dataclass(frozen=True)
@@ -83,10 +87,11 @@ def row_seed(base_seed: int, model_id: str) -> int:
 
     A SHA-256 digest, not Python's ``hash`` (which is salted per process), so
     the same model gets the same seed in every process and on every worker.
-    Kept below 2**53 so a spreadsheet cell (a double) holds it exactly.
+    Kept below 2**49 (15 decimal digits): a spreadsheet shows and keeps 15
+    significant digits, so a seed copied out of a cell reproduces the row.
     """
     digest = hashlib.sha256(f"{int(base_seed)}:{model_id}".encode()).digest()
-    return int.from_bytes(digest[:8], "big") >> 11
+    return int.from_bytes(digest[:8], "big") >> 15
 
 
 def _steps(maturity: float, per_year: int) -> int:
@@ -120,6 +125,25 @@ def _recommend(spec, settings, seed, maturity, strike) -> str:
         return "none consistent at these paths; raise paths or steps"
     per_year = best["steps"] / maturity
     return f"{best['scheme']} at {per_year:.0f} steps a year"
+
+
+def _unformed_reason(price, iv, iv_reason, spot, strike, t, rate, div_yield) -> str:
+    """Why a price has no usable implied volatility ("" when it has one).
+
+    The vol-bp difference is only meaningful when both prices invert to an
+    implied volatility that reprices them.  Outside the no-arbitrage bounds,
+    at rho = +-1 (where a scheme's price may sit on a bound) or at a spot so
+    extreme that the Black-Scholes arithmetic overflows, it does not, and a
+    fallback through the vega would print an absurd number instead.
+    """
+    if not math.isfinite(price):
+        return "the price is not a finite number"
+    if not (math.isfinite(iv) and iv > 0):
+        return iv_reason or "no implied volatility reprices it"
+    back = float(bs_price(spot, strike, t, iv, rate, div_yield, "call"))
+    if not math.isfinite(back) or abs(back - price) > 1e-6 * max(abs(price), 1e-12 * spot):
+        return "its implied volatility does not reprice it (arithmetic out of range)"
+    return ""
 
 
 def check_model(spec: ModelSpec, settings: ControlSettings) -> list[dict]:
@@ -177,17 +201,35 @@ def check_model(spec: ModelSpec, settings: ControlSettings) -> list[dict]:
             z=settings.z,
             mc_result=run,
         )
-        verdicts = np.atleast_1d(cmp_.verdict)
-        worst = int(np.nanargmax(np.where(verdicts == BIASED, np.abs(cmp_.diff_vol_bp), -1.0)))
+        verdicts = np.atleast_1d(cmp_.verdict).astype(object)
+        diff_bp = np.array(np.atleast_1d(cmp_.diff_vol_bp), dtype=float)
+        fourier = np.atleast_1d(cmp_.fourier_price)
+        mc_prices = np.atleast_1d(run.price)
+        reasons = [""] * len(strikes)
+        for i, k in enumerate(strikes):
+            for what, price in (("Fourier", fourier[i]), ("Monte Carlo", mc_prices[i])):
+                iv, why = implied_vol_reason(
+                    price, spec.spot, k, t, spec.rate, spec.div_yield, "call"
+                )
+                why = _unformed_reason(
+                    float(price), float(iv), str(why), spec.spot, k, t, spec.rate, spec.div_yield
+                )
+                if why:
+                    reasons[i] = f"no vol-bp difference: {what} price {float(price):.6g}: {why}"
+                    verdicts[i], diff_bp[i] = CHECK_FAILED, math.nan
+                    break
+        worst = int(np.argmax(np.where(verdicts == BIASED, np.abs(diff_bp), -1.0)))
         recommendation = ""
         if (verdicts == BIASED).any():
             recommendation = _recommend(spec, settings, seed, t, float(strikes[worst]))
         for i, k in enumerate(strikes):
             flags = list(model_flags)
             if verdicts[i] == BIASED:
-                flags.append(f"Monte Carlo biased ({cmp_.diff_vol_bp[i]:+.1f} bp)")
+                flags.append(f"Monte Carlo biased ({diff_bp[i]:+.1f} bp)")
             elif verdicts[i] == UNDECIDED:
                 flags.append("Monte Carlo undecided")
+            elif verdicts[i] == CHECK_FAILED:
+                flags.append("Monte Carlo check could not be formed")
             rows.append(
                 {
                     "model_id": spec.model_id,
@@ -202,13 +244,14 @@ def check_model(spec: ModelSpec, settings: ControlSettings) -> list[dict]:
                     "mc_price": float(run.price[i]),
                     "std_error": float(run.std_error[i]),
                     "diff_price": float(cmp_.diff_price[i]),
-                    "diff_vol_bp": float(cmp_.diff_vol_bp[i]),
+                    "diff_vol_bp": float(diff_bp[i]),
                     "z_score": float(cmp_.z_score[i]),
                     "verdict": str(verdicts[i]),
                     "quantiles": quant,
-                    "recommendation": recommendation if verdicts[i] != CONSISTENT else "",
+                    "recommendation": recommendation if verdicts[i] in (BIASED, UNDECIDED) else "",
                     "flags": flags,
                     "seed": seed,
+                    "reason": reasons[i],
                 }
             )
     return rows

@@ -1,5 +1,6 @@
 """The daily control refresh: results, history, exit codes, and never losing data."""
 
+import datetime as dt
 import hashlib
 import os
 import zipfile
@@ -43,7 +44,17 @@ def make_book(folder: Path, edit=None, models=3, name="control.xlsx") -> Path:
 
 
 def _rows(path: Path, sheet="Results"):
-    return [list(r) for r in load_workbook(path)[sheet].iter_rows(min_row=2, values_only=True)]
+    """The table's rows (lists in RESULT_COLUMNS order), without notes and chart data below."""
+    out = []
+    for r in load_workbook(path)[sheet].iter_rows(min_row=2, values_only=True):
+        if not isinstance(r[0], dt.datetime):
+            break
+        out.append([r[0].date().isoformat(), *r[1 : len(control.RESULT_COLUMNS)]])
+    return out
+
+
+def _col(name):
+    return control.RESULT_COLUMNS.index(name)
 
 
 def _without_run_time(rows):
@@ -56,9 +67,11 @@ def test_row_seed_is_stable_and_distinct():
     # SHA-256 based (hashlib), so it does not change with PYTHONHASHSEED
     assert (
         row_seed(7, "ALD-EQX")
-        == int.from_bytes(hashlib.sha256(b"7:ALD-EQX").digest()[:8], "big") >> 11
+        == int.from_bytes(hashlib.sha256(b"7:ALD-EQX").digest()[:8], "big") >> 15
     )
-    assert row_seed(7, "ALD-EQX") < 2**53
+    # 15 decimal digits: a spreadsheet keeps 15 significant digits (common practice, no source)
+    assert row_seed(7, "ALD-EQX") < 10**15
+    assert max(row_seed(s, f"M{i}") for s in range(20) for i in range(50)) < 10**15
 
 
 def test_settings_are_validated():
@@ -99,6 +112,8 @@ def test_refresh_writes_results_history_and_a_backup(tmp_path):
     header = control.RESULT_COLUMNS
     first = dict(zip(header, rows[0], strict=True))
     assert first["as-of"] == "2026-12-01" and first["rootvar version"]
+    # a seed read back from the cell reproduces the row
+    assert isinstance(first["seed"], int)
     assert first["seed"] == row_seed(20240601, first["model id"])
     # the numbers are the core's (same seed, same settings)
     wb = load_workbook(path)
@@ -116,10 +131,11 @@ def test_refresh_writes_results_history_and_a_backup(tmp_path):
     settings = ControlSettings(paths=4096, steps_per_year=8, quantiles=(0.01, 0.99))
     ref = check_model(spec, settings)[0]
     assert first["Fourier price"] == pytest.approx(ref["fourier_price"])
-    assert first["Monte Carlo price"] == ref["mc_price"]
+    # openpyxl writes 16 significant digits ("%.16g"), so the last bit may differ
+    assert first["Monte Carlo price"] == pytest.approx(ref["mc_price"], rel=1e-15)
+    assert ref["seed"] == first["seed"]
     assert _rows(path, "History") == rows
     assert len(wb["Results"]._charts) == 1
-    assert wb["Results"].conditional_formatting
 
 
 def test_history_is_replaced_per_date_not_duplicated(tmp_path):
@@ -131,6 +147,9 @@ def test_history_is_replaced_per_date_not_duplicated(tmp_path):
     history = _rows(path, "History")
     assert len(history) == 8
     assert [r[0] for r in history] == ["2026-12-01"] * 4 + ["2026-12-02"] * 4
+    store = control.HistoryStore(str(tmp_path / "control.history.sqlite"))
+    assert store.dates() == ["2026-12-01", "2026-12-02"]
+    assert len(store.read()) == 8
 
 
 def test_one_and_two_workers_and_a_dask_cluster_agree(tmp_path):
@@ -163,11 +182,13 @@ def _set_model(row, col, value):
 @pytest.mark.parametrize(
     "edit, bad_ids, fragment",
     [
-        (_set_model(2, 7, "fast"), ["ALD-EQX"], "kappa must be a number, got 'fast'"),
+        (_set_model(2, 7, "fast"), ["ALD-EQX"], "cell G2: kappa must be a number, got 'fast'"),
         (_set_model(3, 7, -1.0), ["CRV-SHP"], "kappa must be > 0, got -1.0"),
         (_set_model(3, 10, 1.5), ["CRV-SHP"], "rho must lie in [-1, 1]"),
         (_set_model(3, 1, "ALD-EQX"), ["ALD-EQX", "ALD-EQX"], "duplicate model id"),
-        (_set_model(2, 11, "soon"), ["ALD-EQX"], "maturities must be numbers"),
+        (_set_model(2, 11, "soon"), ["ALD-EQX"], "cell K2: maturities must be positive numbers"),
+        (_set_model(2, 11, "1,,2"), ["ALD-EQX"], "cell K2: maturities must be positive numbers"),
+        (_set_model(3, 12, "0.9, "), ["CRV-SHP"], "no empty entries"),
     ],
 )
 def test_row_problems_mark_the_row_and_the_rest_is_computed(tmp_path, edit, bad_ids, fragment):
@@ -175,10 +196,10 @@ def test_row_problems_mark_the_row_and_the_rest_is_computed(tmp_path, edit, bad_
     code = main(["refresh", str(path), "--as-of", "2026-12-01", "--workers", "1", "--quiet"])
     assert code == control.EXIT_ROWS
     rows = _rows(path)
-    errors = [r for r in rows if r[5] == "input error"]
-    assert [r[3] for r in errors] == bad_ids
-    assert all(fragment in r[-1] for r in errors)
-    assert any(r[5] in ("clear", "breach") for r in rows)
+    errors = [r for r in rows if r[_col("status")] == "input error"]
+    assert [r[_col("model id")] for r in errors] == bad_ids
+    assert all(fragment in r[_col("message")] for r in errors)
+    assert any(r[_col("status")] in ("clear", "breach") for r in rows)
 
 
 def test_empty_rows_are_skipped(tmp_path):
@@ -233,7 +254,12 @@ def test_file_problems_stop_before_writing(tmp_path, capsys, edit, fragment):
     err = capsys.readouterr().err
     assert fragment in err and "nothing was written" in err
     assert _digest(path) == before
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["control.xlsx"]
+    assert _visible(tmp_path) == ["control.xlsx"]
+
+
+def _visible(folder):
+    """Files a user sees: the lock rootvar leaves empty is hidden and holds no data."""
+    return sorted(p.name for p in folder.iterdir() if not p.name.startswith("."))
 
 
 def test_not_a_workbook_and_a_corrupted_archive(tmp_path, capsys):
@@ -252,7 +278,7 @@ def test_not_a_workbook_and_a_corrupted_archive(tmp_path, capsys):
 
 def test_absurdly_large_archive_is_refused(tmp_path, monkeypatch, capsys):
     path = make_book(tmp_path)
-    monkeypatch.setattr(control, "MAX_UNPACKED", 1000)
+    monkeypatch.setattr(control.book, "MAX_UNPACKED", 1000)
     assert main(["refresh", str(path), "--quiet"]) == control.EXIT_FILE
     assert "refusing an archive" in capsys.readouterr().err
 
@@ -274,7 +300,7 @@ def test_read_only_folder_leaves_everything_unchanged(tmp_path, monkeypatch, cap
         def refuse(*args, **kwargs):
             raise PermissionError(13, "Permission denied", str(tmp_path))
 
-        monkeypatch.setattr(control.tempfile, "mkstemp", refuse)
+        monkeypatch.setattr(control.saving.tempfile, "mkstemp", refuse)
     else:
         tmp_path.chmod(0o555)
     try:
@@ -294,16 +320,13 @@ def test_failure_during_save_leaves_the_original_intact(tmp_path, monkeypatch, c
         Path(filename).write_bytes(b"half a workbook")
         raise OSError("disk full")
 
-    monkeypatch.setattr(
-        control.Workbook if hasattr(control, "Workbook") else __import__("openpyxl").Workbook,
-        "save",
-        broken_save,
-    )
+    monkeypatch.setattr(__import__("openpyxl").Workbook, "save", broken_save)
     code = main(["refresh", str(path), "--workers", "1", "--quiet"])
     assert code == control.EXIT_FILE
     assert "disk full" in capsys.readouterr().err
     assert _digest(path) == before
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["control.xlsx"]
+    # the store was written before the workbook: the date is recorded, the workbook untouched
+    assert _visible(tmp_path) == ["control.history.sqlite", "control.xlsx"]
 
 
 def test_foreign_chart_sends_results_to_a_new_file(tmp_path, capsys):
@@ -325,7 +348,7 @@ def test_foreign_chart_sends_results_to_a_new_file(tmp_path, capsys):
 def test_text_from_input_cells_is_written_as_text(tmp_path):
     path = make_book(tmp_path, _set_model(2, 2, '=HYPERLINK("http://example.invalid","x")'))
     main(["refresh", str(path), "--as-of", "2026-12-01", "--workers", "1", "--quiet"])
-    cell = load_workbook(path)["Results"]["E2"]
+    cell = load_workbook(path)["Results"].cell(row=2, column=_col("underlying") + 1)
     assert cell.data_type == "s" and cell.value.startswith("=HYPERLINK")
     with zipfile.ZipFile(path) as z:
         sheet = z.read("xl/worksheets/sheet3.xml").decode()
