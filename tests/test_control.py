@@ -1,64 +1,19 @@
 """The daily control refresh: results, history, exit codes, and never losing data."""
 
-import datetime as dt
 import hashlib
 import os
 import zipfile
 from pathlib import Path
 
 import pytest
+from control_books import _col, _digest, _rows, _visible, _without_run_time, make_book
 from openpyxl import load_workbook
 from openpyxl.chart import LineChart, Reference
 
 import rootvar.addin.control as control
 from rootvar.addin.cli import main
-from rootvar.addin.workbook_build import build_control
 from rootvar.core import HestonParams, InputError
 from rootvar.core.control import ControlSettings, ModelSpec, check_model, row_seed
-
-FAST = {"paths": 4096, "steps per year": 8, "quantile levels": "0.01, 0.99"}
-
-
-def _digest(path: Path) -> str:
-    return hashlib.sha256(path.read_bytes()).hexdigest()
-
-
-def make_book(folder: Path, edit=None, models=3, name="control.xlsx") -> Path:
-    """The shipped control template with fast settings and short test options."""
-    path = folder / name
-    build_control(path)
-    wb = load_workbook(path)
-    settings = wb["Settings"]
-    for row in settings.iter_rows(min_row=4, max_row=12):
-        if row[0].value in FAST:
-            row[1].value = FAST[row[0].value]
-    ws = wb["Models"]
-    for r in range(2, ws.max_row + 1):
-        ws.cell(row=r, column=11, value="0.5")
-        ws.cell(row=r, column=12, value="0.9, 1.1")
-    ws.delete_rows(2 + models, ws.max_row)
-    if edit:
-        edit(wb)
-    wb.save(path)
-    return path
-
-
-def _rows(path: Path, sheet="Results"):
-    """The table's rows (lists in RESULT_COLUMNS order), without notes and chart data below."""
-    out = []
-    for r in load_workbook(path)[sheet].iter_rows(min_row=2, values_only=True):
-        if not isinstance(r[0], dt.datetime):
-            break
-        out.append([r[0].date().isoformat(), *r[1 : len(control.RESULT_COLUMNS)]])
-    return out
-
-
-def _col(name):
-    return control.RESULT_COLUMNS.index(name)
-
-
-def _without_run_time(rows):
-    return [r[:1] + r[2:] for r in rows]
 
 
 def test_row_seed_is_stable_and_distinct():
@@ -255,11 +210,6 @@ def test_file_problems_stop_before_writing(tmp_path, capsys, edit, fragment):
     assert fragment in err and "nothing was written" in err
     assert _digest(path) == before
     assert _visible(tmp_path) == ["control.xlsx"]
-
-
-def _visible(folder):
-    """Files a user sees: the lock rootvar leaves empty is hidden and holds no data."""
-    return sorted(p.name for p in folder.iterdir() if not p.name.startswith("."))
 
 
 def test_not_a_workbook_and_a_corrupted_archive(tmp_path, capsys):

@@ -66,7 +66,7 @@ class Progress:
 
 
 def _duration(seconds: float) -> str:
-    seconds = max(0, int(round(seconds)))
+    seconds = max(0, round(seconds))
     h, rest = divmod(seconds, 3600)
     m, s = divmod(rest, 60)
     return f"{h}h{m:02d}m{s:02d}s" if h else f"{m}m{s:02d}s"
