@@ -6,12 +6,12 @@
 - :mod:`.store` is the history store (SQLite or PostgreSQL through SQLAlchemy Core);
 - :mod:`.sheet_import` imports an old *History* sheet into the store once;
 - :mod:`.saving` holds the workbook lock and the atomic save that keeps file rights;
-- :mod:`.refresh` runs a refresh in that order;
+- :mod:`.daily_refresh` runs a refresh in that order;
 - :mod:`.history_export` shows or exports the store (``rootvar history``).
 """
 
 from .book import MAX_UNPACKED, MODEL_COLUMNS, OPTIONAL_SETTINGS, SETTING_LABELS, ControlError
-from .refresh import EXIT_BREACH, EXIT_CLEAR, EXIT_FILE, EXIT_ROWS, RefreshOutcome, refresh
+from .daily_refresh import EXIT_BREACH, EXIT_CLEAR, EXIT_FILE, EXIT_ROWS, RefreshOutcome, refresh
 from .results import RESULT_COLUMNS, summary_table
 from .saving import LockBusy
 from .store import HistoryStore, StoreError
