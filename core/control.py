@@ -24,7 +24,7 @@ from .monte_carlo import mc_price
 from .params import HestonParams
 from .validation import InputError
 from .variance import euler_max_step, euler_negative_probability, feller_ratio, regime_label
-from .verdict import BIASED, UNDECIDED, compare_mc_fourier, step_study
+from .verdict import BIASED, CONSISTENT, SCHEME_COST, UNDECIDED, compare_mc_fourier
 
 __all__ = ["CHECK_FAILED", "ControlSettings", "ModelSpec", "check_model", "row_seed"]
 
@@ -98,33 +98,53 @@ def _steps(maturity: float, per_year: int) -> int:
     return max(1, math.ceil(per_year * maturity - 1e-9))
 
 
-def _recommend(spec, settings, seed, maturity, strike) -> str:
-    """Cheapest consistent scheme and step for one failing option."""
+def recommendation_grid(settings: ControlSettings, maturity: float):
+    """Schemes and step counts searched for a recommendation, as in a step study."""
     base = settings.steps_per_year
     grid = sorted(
         {_steps(maturity, n) for n in (base // 4 or 1, base // 2 or 1, base, 2 * base, 4 * base)}
     )
-    table = step_study(
-        spec.params,
-        spec.spot,
-        strike,
-        maturity,
-        spec.rate,
-        spec.div_yield,
-        "call",
-        ("qe", "exact_variance", settings.scheme),
-        grid,
-        settings.paths,
-        seed,
-        True,
-        settings.tolerance_bp,
-        settings.z,
+    schemes = tuple(dict.fromkeys(("qe", "exact_variance", settings.scheme)))
+    return schemes, grid
+
+
+def _recommend(spec, settings, seed, maturity, strike) -> str:
+    """Cheapest consistent scheme and step for one failing option.
+
+    The answer is the step study's ``cheapest`` cell (lowest steps x
+    :data:`SCHEME_COST`, ties to the earlier scheme, then the fewer steps),
+    found without running the whole study: the cells are tried in that order
+    and the first consistent one is the answer, since every cell is run with
+    the same seed and settings as in the study.  A book where most failing
+    options settle on a coarse QE step then pays one or two runs, not fifteen.
+    """
+    schemes, grid = recommendation_grid(settings, maturity)
+    cells = sorted(
+        ((n * SCHEME_COST[s], i, n, s) for i, s in enumerate(schemes) for n in grid),
+        key=lambda c: c[:3],
     )
-    best = table.attrs["cheapest"]
-    if best is None:
-        return "none consistent at these paths; raise paths or steps"
-    per_year = best["steps"] / maturity
-    return f"{best['scheme']} at {per_year:.0f} steps a year"
+    for _, _, n, scheme in cells:
+        cmp_ = compare_mc_fourier(
+            spec.params,
+            spec.spot,
+            strike,
+            maturity,
+            spec.rate,
+            spec.div_yield,
+            "call",
+            scheme,
+            n,
+            settings.paths,
+            seed,
+            False,
+            True,
+            settings.tolerance_bp,
+            None,
+            settings.z,
+        )
+        if cmp_.verdict == CONSISTENT:
+            return f"{scheme} at {n / maturity:.0f} steps a year"
+    return "none consistent at these paths; raise paths or steps"
 
 
 def _unformed_reason(price, iv, iv_reason, spot, strike, t, rate, div_yield) -> str:

@@ -1,4 +1,4 @@
-"""Shared fixtures: a throw-away PostgreSQL server for the history-store tests.
+"""Shared fixtures: the throw-away PostgreSQL server (tests/pg_server.py) for the store tests.
 
 The server is started from the PostgreSQL binaries on the machine (``initdb``
 and ``pg_ctl`` on the PATH or under /usr/lib/postgresql/*/bin), listens on
@@ -13,67 +13,23 @@ Where the binaries are missing the PostgreSQL tests skip, unless
 
 from __future__ import annotations
 
-import glob
 import os
-import pwd
-import shutil
-import socket
-import subprocess
-import tempfile
 import uuid
-from pathlib import Path
 
 import pytest
-
-
-def _pg_bin() -> Path | None:
-    found = shutil.which("initdb")
-    if found:
-        return Path(found).resolve().parent
-    for folder in sorted(glob.glob("/usr/lib/postgresql/*/bin"), reverse=True):
-        if os.path.exists(os.path.join(folder, "initdb")):
-            return Path(folder)
-    return None
-
-
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
+from pg_server import pg_bin, throwaway_postgres
 
 
 @pytest.fixture(scope="session")
 def postgres_server():
     """URL prefix ``postgresql+psycopg://postgres@127.0.0.1:PORT`` of a fresh server."""
-    bin_dir = _pg_bin()
-    if bin_dir is None:
+    if pg_bin() is None:
         if os.environ.get("ROOTVAR_REQUIRE_POSTGRES") == "1":
             pytest.fail("PostgreSQL binaries not found but ROOTVAR_REQUIRE_POSTGRES=1")
         pytest.skip("PostgreSQL binaries (initdb, pg_ctl) not found")
     pytest.importorskip("psycopg")
-    root = Path(tempfile.mkdtemp(prefix="rootvar-pg-"))
-    prefix: list[str] = []
-    if os.geteuid() == 0:
-        user = pwd.getpwnam("postgres")
-        os.chown(root, user.pw_uid, user.pw_gid)
-        prefix = ["runuser", "-u", "postgres", "--"]
-    data, log, port = root / "data", root / "log", _free_port()
-
-    def run(*cmd):
-        subprocess.run([*prefix, *cmd], check=True, capture_output=True, cwd=root, timeout=120)
-
-    run(str(bin_dir / "initdb"), "-D", str(data), "-U", "postgres", "-A", "trust", "-N")
-    options = f"-p {port} -k {root} -c listen_addresses=127.0.0.1 -F"
-    run(str(bin_dir / "pg_ctl"), "-D", str(data), "-o", options, "-l", str(log), "-w", "start")
-    try:
-        yield f"postgresql+psycopg://postgres@127.0.0.1:{port}"
-    finally:
-        subprocess.run(
-            [*prefix, str(bin_dir / "pg_ctl"), "-D", str(data), "-m", "immediate", "stop"],
-            capture_output=True,
-            timeout=120,
-        )
-        shutil.rmtree(root, ignore_errors=True)
+    with throwaway_postgres() as url:
+        yield url
 
 
 @pytest.fixture
