@@ -291,7 +291,7 @@ def build_price_twice(path: Path) -> None:
 
 def build_control(path: Path) -> None:
     """Middle office's control workbook: settings, the models of the book, results, history."""
-    from .control import MODEL_COLUMNS, RESULT_COLUMNS, SETTING_LABELS
+    from .control import MODEL_COLUMNS, OPTIONAL_SETTINGS, RESULT_COLUMNS, SETTING_LABELS
 
     wb = Workbook()
     ws = wb.active
@@ -308,14 +308,22 @@ def build_control(path: Path) -> None:
         "z": 3.0,
         "quantile levels": "0.01, 0.5, 0.99",
     }
-    for i, label in enumerate(SETTING_LABELS, start=4):
+    # the history store: empty means NAME.history.sqlite beside the workbook
+    defaults |= {"history store": "", "history dates shown": 20, "book name": ""}
+    labels = [*SETTING_LABELS, *OPTIONAL_SETTINGS]
+    for i, label in enumerate(labels, start=4):
         ws.cell(row=i, column=1, value=label)
-        ws.cell(row=i, column=2, value=defaults[label]).fill = _INPUT
-    ws["A14"] = (
-        "Refresh with: rootvar refresh control.xlsx [--as-of DATE] [--workers N]; "
-        "results and history are written by the refresh."
-    )
-    ws["A14"].font = _NOTE
+        ws.cell(row=i, column=2, value=defaults[label] or None).fill = _INPUT
+    note = 4 + len(labels) + 1
+    for k, text in enumerate(
+        (
+            "Refresh with: rootvar refresh control.xlsx [--as-of DATE] [--workers N].",
+            "Every refresh records its rows in the history store: empty means",
+            "control.history.sqlite beside this file; or give a database URL.",
+            "The History sheet shows the store's last dates; the store is the record.",
+        )
+    ):
+        ws.cell(row=note + k, column=1, value=text).font = _NOTE
     _widths(ws, {"A": 34, "B": 18})
 
     models = wb.create_sheet("Models")

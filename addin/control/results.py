@@ -49,6 +49,7 @@ STATUS_CLEAR, STATUS_BREACH, STATUS_INPUT, STATUS_FAILED = (
 #: Number formats by kind of quantity (Excel format codes).
 _FORMATS = {
     "date": "yyyy-mm-dd",
+    "datetime": "yyyy-mm-dd hh:mm",
     "ratio": "0.000",
     "prob": "0.00%",
     "years": "0.0000",
@@ -73,11 +74,11 @@ class Field:
 
 
 FIELDS = [
-    Field("as_of", "as-of", "date", 11),
-    Field("run_time", "run time (UTC)", "text", 20),
-    Field("rootvar_version", "rootvar version", "text", 9),
+    Field("as_of", "as-of", "date", 10.5),
+    Field("run_time", "run time (UTC)", "datetime", 15),
+    Field("rootvar_version", "rootvar version", "text", 8),
     Field("model_id", "model id", "text", 12),
-    Field("underlying", "underlying", "text", 22),
+    Field("underlying", "underlying", "text", 16),
     Field("status", "status", "text", 12),
     Field("feller_ratio", "Feller ratio", "ratio", 8),
     Field("regime", "regime", "text", 14),
@@ -95,11 +96,11 @@ FIELDS = [
     Field("diff_vol_bp", "MC minus Fourier (vol bp)", "bp", 10),
     Field("z_score", "z-score", "z", 8),
     Field("verdict", "verdict", "text", 12),
-    Field("quantiles", "variance quantiles at maturity", "text", 30),
-    Field("recommendation", "recommended scheme and step", "text", 28),
-    Field("flags", "flags", "text", 40),
-    Field("seed", "seed", "seed", 17),
-    Field("message", "message", "text", 40),
+    Field("quantiles", "variance quantiles at maturity", "text", 24),
+    Field("recommendation", "recommended scheme and step", "text", 20),
+    Field("flags", "flags", "text", 32),
+    Field("seed", "seed", "seed", 16),
+    Field("message", "message", "text", 32),
 ]
 RESULT_COLUMNS = [f.header for f in FIELDS]
 KEYS = [f.key for f in FIELDS]
@@ -111,6 +112,7 @@ _HEAD = PatternFill("solid", fgColor="E4E8EC")
 _BOLD = Font(bold=True)
 _NOTE = Font(italic=True, size=9, color="555555")
 _WRAP = Alignment(wrap_text=True, vertical="top")
+_TOP = Alignment(vertical="top")
 
 RULE_TEXT = (
     "Shading: an amber cell breached the threshold named in its flags (Settings sheet: Feller "
@@ -188,6 +190,11 @@ def _cell_value(key, value):
         return None
     if key == "as_of" and isinstance(value, str):
         return dt.date.fromisoformat(value)
+    if key == "run_time" and isinstance(value, str):
+        try:  # a spreadsheet has no time zones: UTC, as the header says
+            return dt.datetime.fromisoformat(value).replace(tzinfo=None)
+        except ValueError:
+            return value
     if key in ("safe_step_years", "safe_step_days") and isinstance(value, float):
         return "unbounded" if math.isinf(value) else value
     return value
@@ -207,9 +214,11 @@ def _header(ws, settings: ControlSettings | None):
         text = f.header.replace("production step", f"production step{step}")
         cell = ws.cell(row=1, column=_COL[f.key], value=text)
         cell.font, cell.alignment, cell.fill = _BOLD, _WRAP, _HEAD
-        ws.column_dimensions[get_column_letter(_COL[f.key])].width = f.width
+        # width rule: the column holds its longest header word plus a margin
+        width = max(f.width, max(len(w) for w in text.split()) + 2)
+        ws.column_dimensions[get_column_letter(_COL[f.key])].width = width
         # words wrap at the column width; estimate the lines the longest header takes
-        per_line = max(1, int(f.width) - 1)
+        per_line = max(1, int(width) - 1)
         used, n = 0, 1
         for word in text.split():
             if used and used + 1 + len(word) > per_line:
@@ -231,22 +240,35 @@ def _format(cell, kind, value):
 def _write_table(ws, rows, settings, first=2):
     _header(ws, settings)
     for i, row in enumerate(rows, start=first):
+        lines = 1
         for f in FIELDS:
             value = _cell_value(f.key, row.get(f.key))
             if value is None:
                 continue
             cell = _put(ws, i, _COL[f.key], value)
             _format(cell, f.kind, value)
+            if isinstance(value, str) and len(value) > f.width:
+                cell.alignment = _WRAP  # long flags and messages wrap inside their column
+                lines = max(lines, math.ceil(len(value) / (f.width - 1)))
+        if lines > 1:
+            # spreadsheet programs do not grow a row for wrapped text written by a library
+            ws.row_dimensions[i].height = 13 * lines + 2
+            for f in FIELDS:
+                cell = ws.cell(row=i, column=_COL[f.key])
+                if cell.value is not None and not cell.alignment.wrap_text:
+                    cell.alignment = _TOP  # one baseline across the row
 
 
-def _print_setup(ws, last_col: int, last_row: int):
+def _print_setup(ws):
+    """Landscape A3, one page wide, header row repeated: 25 columns stay legible."""
     ws.page_setup.orientation = "landscape"
-    ws.page_setup.paperSize = ws.PAPERSIZE_A4
+    ws.page_setup.paperSize = ws.PAPERSIZE_A3
     ws.page_setup.fitToWidth = 1
     ws.page_setup.fitToHeight = 0
     ws.sheet_properties.pageSetUpPr.fitToPage = True
     ws.print_title_rows = "1:1"
-    ws.print_area = f"A1:{get_column_letter(last_col)}{max(last_row, 2)}"
+    ws.page_margins.left = ws.page_margins.right = 0.4
+    ws.page_margins.top = ws.page_margins.bottom = 0.5
 
 
 def _shade(ws, i, row, settings: ControlSettings):
@@ -285,39 +307,38 @@ def _chart_block(ws, rows, settings: ControlSettings, top: int):
     if not drawn:
         return
     drawn.sort(key=lambda r: (r["model_id"], r["maturity"], r["strike"]))
-    title = ws.cell(row=top, column=1, value="Chart data")
-    title.font = _BOLD
+    # the block sits in the columns from "underlying" on, wide enough for its labels
+    c0 = _COL["underlying"]
+    ws.cell(row=top, column=c0, value="Chart data").font = _BOLD
     note = (
         f"The {len(drawn)} rows with the largest |MC minus Fourier| (vol bp), "
         f"and the tolerance band of +-{settings.tolerance_bp:g} bp."
     )
-    ws.cell(row=top + 1, column=1, value=note).font = _NOTE
+    ws.cell(row=top + 1, column=c0, value=note).font = _NOTE
     head = top + 2
-    for j, text in enumerate(
-        ("option", "MC minus Fourier (vol bp)", "+tolerance", "-tolerance"), 1
-    ):
-        ws.cell(row=head, column=j, value=text).font = _BOLD
+    headers = ("option", "MC minus Fourier (vol bp)", "+tolerance", "-tolerance")
+    for j, text in enumerate(headers):
+        cell = ws.cell(row=head, column=c0 + j, value=text)
+        cell.font, cell.alignment = _BOLD, _WRAP
+    ws.row_dimensions[head].height = 45
     for i, r in enumerate(drawn, start=head + 1):
-        label = f"{r['model_id']} T={r['maturity']:g} K={r['strike']:g}"
-        ws.cell(row=i, column=1, value=label)
-        for j, value in (
-            (2, r["diff_vol_bp"]),
-            (3, settings.tolerance_bp),
-            (4, -settings.tolerance_bp),
-        ):
-            ws.cell(row=i, column=j, value=value).number_format = _FORMATS["bp"]
+        ws.cell(row=i, column=c0, value=f"{r['model_id']} {r['maturity']:g}y K{r['strike']:g}")
+        values = (r["diff_vol_bp"], settings.tolerance_bp, -settings.tolerance_bp)
+        for j, value in enumerate(values, start=1):
+            ws.cell(row=i, column=c0 + j, value=value).number_format = _FORMATS["bp"]
     last = head + len(drawn)
     bars = BarChart()
-    bars.type = "bar"  # horizontal bars: long option labels stay readable
+    bars.type = "col"
     bars.title = f"MC minus Fourier (vol bp), production scheme {settings.scheme}"
-    bars.add_data(Reference(ws, min_col=2, min_row=head, max_row=last), titles_from_data=True)
-    cats = Reference(ws, min_col=1, min_row=head + 1, max_row=last)
+    bars.add_data(Reference(ws, min_col=c0 + 1, min_row=head, max_row=last), titles_from_data=True)
+    cats = Reference(ws, min_col=c0, min_row=head + 1, max_row=last)
     bars.set_categories(cats)
     bars.x_axis.title = "option (model, maturity, strike)"
     bars.y_axis.title = "vol bp"
     band = LineChart()
     band.add_data(
-        Reference(ws, min_col=3, max_col=4, min_row=head, max_row=last), titles_from_data=True
+        Reference(ws, min_col=c0 + 2, max_col=c0 + 3, min_row=head, max_row=last),
+        titles_from_data=True,
     )
     band.set_categories(cats)
     for series in band.series:
@@ -328,9 +349,8 @@ def _chart_block(ws, rows, settings: ControlSettings, top: int):
         axis.delete = False  # axes left to defaults vanish in some spreadsheet programs
     bars += band
     bars.legend.position = "b"
-    bars.height = max(8.0, 0.45 * len(drawn) + 3)
-    bars.width = 24
-    ws.add_chart(bars, f"F{top}")
+    bars.height, bars.width = 10, max(16.0, 0.6 * len(drawn) + 6)
+    ws.add_chart(bars, f"{get_column_letter(c0 + 5)}{top}")
 
 
 def write_results(wb, rows, settings: ControlSettings):
@@ -343,7 +363,7 @@ def write_results(wb, rows, settings: ControlSettings):
     rule = ws.cell(row=last + 2, column=1, value=RULE_TEXT)
     rule.font = _NOTE
     _chart_block(ws, rows, settings, last + 4)
-    _print_setup(ws, len(FIELDS), last + 2)
+    _print_setup(ws)
     return ws
 
 
@@ -357,7 +377,7 @@ def write_history_window(wb, rows, settings: ControlSettings, dates_shown: int, 
         "The store is the record; this sheet is rewritten by every refresh."
     )
     ws.cell(row=last + 2, column=1, value=note).font = _NOTE
-    _print_setup(ws, len(FIELDS), last)
+    _print_setup(ws)
     return ws
 
 

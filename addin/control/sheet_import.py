@@ -56,6 +56,8 @@ def _value(key, value):
     if value is None or (isinstance(value, str) and not value.strip()):
         return None
     kind = _KIND[key]
+    if kind == "datetime":
+        return value.isoformat() if isinstance(value, dt.datetime) else str(value)
     if kind == "text":
         return str(value)
     if kind == "seed":

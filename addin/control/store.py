@@ -40,6 +40,7 @@ _BATCH = 2_000
 
 _SQL_TYPES = {
     "date": sa.String(10),
+    "datetime": sa.String(32),
     "ratio": sa.Float,
     "prob": sa.Float,
     "years": sa.Float,
