@@ -295,3 +295,64 @@ def test_a_local_cluster_of_two_worker_processes_gives_the_rows_of_one_worker(tm
         outcome = control.refresh(two, "2026-12-01", scheduler=cluster.scheduler_address)
     assert outcome.exit_code in (0, 1)
     assert _without_run_time(_rows(two)) == _without_run_time(_rows(one))
+
+
+def _start_and_wait_for_progress(path):
+    """A refresh on 2 workers in its own session, returned once a model is done."""
+    import time
+
+    proc = subprocess.Popen(
+        [*CLI, "refresh", str(path), "--as-of", "2026-12-03", "--workers", "2"],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        start_new_session=True,  # its own process group, like a terminal job
+    )
+    deadline = time.monotonic() + 120
+    line = ""
+    while "[1/" not in line and time.monotonic() < deadline:
+        line = proc.stderr.readline()
+    assert "[1/" in line, "no progress line"
+    return proc
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("how", ["ctrl-c", "kill"])
+def test_an_interrupted_or_killed_refresh_leaves_workbook_and_store_as_they_were(tmp_path, how):
+    import signal
+
+    path = make_book(tmp_path, models=3)
+    main(["refresh", str(path), "--as-of", "2026-12-01", "--workers", "1", "--quiet"])
+    before = _digest(path)
+    proc = _start_and_wait_for_progress(path)
+    if how == "ctrl-c":
+        os.killpg(proc.pid, signal.SIGINT)  # what a terminal sends to the whole job
+    else:
+        proc.kill()
+    code = proc.wait(timeout=120)
+    # the workers die with the parent, so the pipe they share closes
+    err = proc.stderr.read()
+    if how == "ctrl-c":
+        assert code == 130 and "Traceback" not in err, err
+        assert "nothing was written" in err
+    else:
+        assert code == -9
+    assert _digest(path) == before
+    assert HistoryStore(str(tmp_path / "control.history.sqlite")).dates() == ["2026-12-01"]
+
+
+def test_progress_shows_models_done_rate_and_time_left():
+    import io
+
+    from rootvar.addin.control.checks import Progress
+    from rootvar.core import HestonParams
+    from rootvar.core.control import ModelSpec
+
+    out = io.StringIO()
+    spec = ModelSpec("M", "u", 100.0, 0.0, 0.0, HestonParams(0.04, 1, 0.04, 0.2, -0.5), (1,), (1,))
+    progress = Progress(4, out, quiet=False, every=0.0)
+    progress.started -= 10.0  # as if 10 s had passed
+    progress.step(spec, "")
+    line = out.getvalue().strip()
+    assert line.startswith("[1/4]  25.0%")
+    assert "0.10 models/s" in line and "left 0m30s" in line

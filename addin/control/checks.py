@@ -7,6 +7,7 @@ rows.  Progress reports models done, the rate and the time left.
 
 from __future__ import annotations
 
+import os
 import signal
 import sys
 import time
@@ -72,9 +73,21 @@ def _duration(seconds: float) -> str:
     return f"{h}h{m:02d}m{s:02d}s" if h else f"{m}m{s:02d}s"
 
 
-def _ignore_interrupt() -> None:
+def _worker_start() -> None:
+    """Set up a pool worker: Ctrl-C is the parent's to handle, and a worker dies with it."""
     # Ctrl-C reaches the whole process group; only the parent decides what stops
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    if sys.platform.startswith("linux"):
+        # A killed parent would otherwise leave its workers waiting forever on the pool's
+        # queue; PR_SET_PDEATHSIG (1) has the kernel end them with the parent.
+        import ctypes
+
+        try:
+            ctypes.CDLL(None, use_errno=True).prctl(1, signal.SIGTERM)
+        except (OSError, AttributeError):
+            pass
+        if os.getppid() == 1:  # the parent died before the request took effect
+            os._exit(1)
 
 
 def run_checks(specs, settings, workers: int, scheduler: str | None, progress: Progress):
@@ -88,7 +101,7 @@ def run_checks(specs, settings, workers: int, scheduler: str | None, progress: P
             progress.step(spec, results[-1][1])
         return results
     results: list = [None] * len(specs)
-    pool = ProcessPoolExecutor(max_workers=workers, initializer=_ignore_interrupt)
+    pool = ProcessPoolExecutor(max_workers=workers, initializer=_worker_start)
     try:
         futures = {pool.submit(check_one, spec, settings): i for i, spec in enumerate(specs)}
         for fut in as_completed(futures):
