@@ -25,7 +25,7 @@ from .validation import InputError, as_float_array, as_positive_int, check_choic
 __all__ = ["DEFAULT_GRID", "PDEResult", "pde_price"]
 
 #: Finest grid by default: spot steps, variance steps, time steps.
-DEFAULT_GRID = (96, 48, 48)
+DEFAULT_GRID = (128, 64, 64)
 #: Smallest finest grid accepted: the coarsest refinement level is a quarter of it.
 MIN_GRID = (32, 16, 8)
 #: Default tolerance on the error estimate, as a share of the spot.
@@ -182,14 +182,20 @@ def _solve_level(problem, params, spot, rate, div_yield, sizes, scheme, damping,
         if problem.dates is None:
             u[:, hit] = problem.rebate  # only the barrier line itself lies on the hit side
         else:
+            # the barrier is a grid line; the value jumps there, so that line takes the
+            # mean of the two sides, which keeps the jump's error second order
+            line = int(np.argmin(np.abs(s - problem.barrier)))
+            beyond = hit.copy()
+            beyond[line] = False
 
             def knock(w):
                 w = w.reshape(v.size, s.size).copy()
-                w[:, hit] = problem.rebate
+                w[:, line] = 0.5 * (w[:, line] + problem.rebate)
+                w[:, beyond] = problem.rebate
                 return w.ravel()
 
             if problem.dates[-1] >= problem.maturity * (1 - 1e-12):
-                u[:, hit] = problem.rebate
+                u = knock(u).reshape(v.size, s.size)
     pieces = _pieces(problem, sizes[2])
     values = march(ops, u.ravel(), pieces, scheme, damping, knock).reshape(v.size, s.size)
     spline = RectBivariateSpline(v, s, values, kx=3, ky=3)
@@ -281,7 +287,7 @@ def pde_price(
     *,
     grid=DEFAULT_GRID,
     scheme="hv",
-    damping=2,
+    damping=1,
     refine=True,
     tolerance=DEFAULT_TOLERANCE,
 ):
@@ -303,7 +309,7 @@ def pde_price(
         Hundsdorfer-Verwer (default) or modified Craig-Sneyd ADI.
     damping : int
         Steps replaced by two damped implicit half steps at the start and
-        after every discrete knock (default 2; 0 switches damping off).
+        after every discrete knock (default 1; 0 switches damping off).
     refine : bool
         Also solve on the grid halved and quartered in every direction and
         estimate the error (default True).
