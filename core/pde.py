@@ -209,8 +209,8 @@ def _refinement(prices, spot, tolerance):
     p0, p1, p2 = prices
     d1, d2 = p0 - p1, p1 - p2
     tiny = 1e-13 * spot
-    if abs(d1) <= tiny:
-        return p0, abs(d1) + abs(d2) * (abs(d2) <= tiny), np.nan, False
+    if abs(d1) <= tiny:  # settled to rounding, or a coincidence that |d2| still shows
+        return p0, abs(d1) + abs(d2), np.nan, False
     ratio = d2 / d1
     order = float(np.log2(ratio)) if ratio > 0 else np.nan
     # observed order within [1.5, 2.5] of the theoretical 2: extrapolate with 2;

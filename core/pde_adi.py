@@ -98,23 +98,23 @@ class _Stepper:
         p0, p1, p2 = self.parts(u)
         return self._lines(u + dt * (p0 + p1 + p2), theta * dt, p1, p2)
 
-    def hv(self, u, dt):
-        theta = SCHEMES["hv"]
+    def _douglas_stage(self, u, dt, theta):
+        """Explicit predictor and line sweeps shared by both schemes; the parts at both ends."""
         p0, p1, p2 = self.parts(u)
         f0 = p0 + p1 + p2
         y0 = u + dt * f0
-        y2 = self._lines(y0, theta * dt, p1, p2)
-        q0, q1, q2 = self.parts(y2)
+        q = self.parts(self._lines(y0, theta * dt, p1, p2))
+        return (p0, p1, p2), f0, y0, q
+
+    def hv(self, u, dt):
+        theta = SCHEMES["hv"]
+        _, f0, y0, (q0, q1, q2) = self._douglas_stage(u, dt, theta)
         z0 = y0 + 0.5 * dt * (q0 + q1 + q2 - f0)
         return self._lines(z0, theta * dt, q1, q2)
 
     def mcs(self, u, dt):
         theta = SCHEMES["mcs"]
-        p0, p1, p2 = self.parts(u)
-        f0 = p0 + p1 + p2
-        y0 = u + dt * f0
-        y2 = self._lines(y0, theta * dt, p1, p2)
-        q0, q1, q2 = self.parts(y2)
+        (p0, p1, p2), f0, y0, (q0, q1, q2) = self._douglas_stage(u, dt, theta)
         z0 = y0 + theta * dt * (q0 - p0) + (0.5 - theta) * dt * (q0 + q1 + q2 - f0)
         return self._lines(z0, theta * dt, p1, p2)
 

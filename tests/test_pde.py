@@ -4,6 +4,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy.stats import norm
 
 from rootvar.core import (
@@ -295,6 +297,34 @@ def test_discrete_monitoring_tends_to_continuous_and_bgk_explains_the_gap():
     assert gaps[0] > gaps[1] > gaps[2]
     # BGK: the gap shrinks like 1/sqrt(m) for many dates, so towards 2x per 4x more dates
     assert 1.3 < gaps[0] / gaps[1] < 2.8 and 1.3 < gaps[1] / gaps[2] < 2.8
+
+
+@pytest.mark.slow
+@settings(max_examples=8, deadline=None)
+@given(
+    v0=st.floats(0.01, 0.1),
+    kappa=st.floats(0.5, 4.0),
+    theta=st.floats(0.01, 0.1),
+    vol_of_vol=st.floats(0.1, 1.0),
+    rho=st.floats(-0.9, 0.5),
+    strike=st.floats(80.0, 120.0),
+    barrier=st.floats(70.0, 95.0),
+)
+def test_down_and_out_call_lies_below_the_vanilla_and_falls_as_the_barrier_rises(
+    v0, kappa, theta, vol_of_vol, rho, strike, barrier
+):
+    # 0 <= knock-out <= vanilla, and a higher down barrier knocks out more paths (common
+    # practice, no source); vanilla from the certified Fourier price; each within the estimates.
+    p = HestonParams(v0, kappa, theta, vol_of_vol, rho)
+    grid = (64, 32, 32)
+    low = pde_price(p, SPOT, BarrierOption("call", strike, 1.0, barrier, "down", "out"), grid=grid)
+    high = pde_price(
+        p, SPOT, BarrierOption("call", strike, 1.0, barrier + 3.0, "down", "out"), grid=grid
+    )
+    vanilla = heston_price(p, SPOT, strike, 1.0)
+    slack = low.error_estimate + high.error_estimate
+    assert -low.error_estimate <= low.price <= vanilla + low.error_estimate
+    assert high.price <= low.price + slack
 
 
 # ------------------------------------------------------------------ Feller
