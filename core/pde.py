@@ -18,7 +18,7 @@ from scipy.interpolate import RectBivariateSpline
 from .fourier import heston_price
 from .params import HestonParams
 from .pde_adi import SCHEMES, march
-from .pde_grid import SPOT_CLUSTER, build_operators, spot_grid, variance_grid
+from .pde_grid import build_operators, spot_grid, variance_grid
 from .products import BarrierOption, EuropeanOption
 from .validation import InputError, as_float_array, as_positive_int, check_choice
 
@@ -34,6 +34,9 @@ DEFAULT_TOLERANCE = 1e-3
 SPOT_REACH = 8.0
 #: Variance domain reaches at least this (in 't Hout & Foulon 2010 use 5).
 VARIANCE_REACH = 5.0
+#: Spot clustering width: this share of ``sqrt(max(v0, theta) T)``, within these limits (x strike).
+CLUSTER_SHARE = 0.25
+CLUSTER_LIMITS = (0.02, 0.2)
 #: Levels of refinement: the finest grid and its halves.
 LEVELS = 3
 
@@ -144,6 +147,13 @@ def _domain(problem, spot, params):
     nodes = [x for x in nodes if low < x < high]
     v_max = max(VARIANCE_REACH, 5.0 * params.v0, 5.0 * params.theta)
     return low, high, nodes, centres, v_max
+
+
+def _cluster_width(params, product):
+    """Width of the spot clustering: a quarter of the typical move to expiry, as a share
+    of the strike, kept within [2%, 20%] (short maturities need it narrow, long ones wide)."""
+    move = np.sqrt(max(params.v0, params.theta) * product.maturity)
+    return product.strike * float(np.clip(CLUSTER_SHARE * move, *CLUSTER_LIMITS))
 
 
 def _pieces(problem, steps):
@@ -398,7 +408,7 @@ def pde_price(
         problem = _Problem(product.kind, product.strike, product.maturity)
 
     low, high, nodes, centres, v_max = _domain(problem, spot, params)
-    width = SPOT_CLUSTER * product.strike
+    width = _cluster_width(params, product)
     s_fine = spot_grid(low, high, nodes, centres, width, sizes[0], 4)
     v_fine = variance_grid(v_max, sizes[1], 4)
     levels = LEVELS if refine else 1

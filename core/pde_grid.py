@@ -48,8 +48,6 @@ import scipy.sparse as sp
 
 __all__ = ["Operators", "build_operators", "spot_grid", "variance_grid"]
 
-#: Width of the spot clustering around each special point, as a share of the strike.
-SPOT_CLUSTER = 0.2
 #: Ratio of the variance grid's top to its clustering width at v = 0.
 VARIANCE_CLUSTER = 500.0
 #: Above this variance, ``u_v`` is taken upwind (in 't Hout & Foulon 2010).

@@ -206,7 +206,7 @@ def test_undamped_start_spoils_gamma_at_large_time_steps(product):
     fine = pde_price(FO, SPOT, product, grid=(128, 64, 128), refine=False).gamma
     damped = abs(pde_price(FO, SPOT, product, grid=grid, refine=False).gamma - fine)
     undamped = abs(pde_price(FO, SPOT, product, grid=grid, refine=False, damping=0).gamma - fine)
-    assert damped < 1e-3
+    assert damped < 3e-3  # about 5% of the gamma at the money here
     assert undamped > 10 * damped
 
 
