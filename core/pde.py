@@ -280,6 +280,15 @@ def _validated(params, spot, product, rate, div_yield, grid, scheme, damping, to
         if n < least:
             raise InputError(f"grid {name} must be >= {least}, got {n}")
         sizes.append(n)
+    # the grid spans the spot, strike and barrier; beyond a ratio of 1e6 it degenerates
+    levels = {"strike": product.strike}
+    if isinstance(product, BarrierOption):
+        levels["barrier"] = product.barrier
+    for name, level in levels.items():
+        if not 1e-6 <= level / values["spot"] <= 1e6:
+            raise InputError(
+                f"{name} must lie within 1e-6 and 1e6 x spot ({values['spot']!r}), got {level!r}"
+            )
     check_choice("scheme", scheme, tuple(SCHEMES))
     if isinstance(damping, (bool, np.bool_)) or not isinstance(damping, (int, np.integer)):
         raise InputError(f"damping must be a whole number >= 0, got {damping!r}")
@@ -337,7 +346,8 @@ def pde_price(
     Raises
     ------
     InputError
-        Bad parameters, product, spot, grid, scheme or damping.
+        Bad parameters, product, spot, grid, scheme or damping; a strike or
+        barrier more than a factor 1e6 away from the spot.
 
     Notes
     -----

@@ -409,5 +409,9 @@ def test_bad_market_input():
         pde_price(FO, SPOT, product, float("nan"))
     with pytest.raises(InputError, match="params must be a HestonParams"):
         pde_price((0.04, 1, 0.04, 0.5, -0.5), SPOT, product)
+    with pytest.raises(InputError, match="barrier must lie within 1e-6 and 1e6 x spot"):
+        pde_price(FO, SPOT, BarrierOption("put", 100.0, 1.0, 1e300, "up", "out"))
+    with pytest.raises(InputError, match="strike must lie within 1e-6 and 1e6 x spot"):
+        pde_price(FO, 1e-300, product)
     with pytest.raises(InputError, match="product must be"):
         pde_price(FO, SPOT, "call")
