@@ -214,7 +214,7 @@ def _solve_level(problem, params, spot, rate, div_yield, sizes, scheme, damping,
     return out, values, sum(n for _, n in pieces)
 
 
-def _refinement(prices, spot, tolerance):
+def _refinement(prices, spot):
     """Price, error estimate, order and whether Richardson was applied."""
     p0, p1, p2 = prices
     d1, d2 = p0 - p1, p1 - p2
@@ -227,8 +227,8 @@ def _refinement(prices, spot, tolerance):
     # |d1| / 3 then bounds the extrapolated value's error for any order in that band
     if 1.5 <= order <= 2.5:
         return p0 + d1 / 3.0, abs(d1) / 3.0, order, True
-    if order >= 1.0 or (ratio > 1.0 and order > 0):
-        return p0, abs(d1) / (ratio - 1.0) if ratio < 2 else abs(d1), order, False
+    if ratio > 1.0:  # order p > 0: the error left is |d1| / (2^p - 1), at most |d1| once p >= 1
+        return p0, abs(d1) / min(ratio - 1.0, 1.0), order, False
     # no order seen (differences not shrinking or changing sign): the sum is all we can say
     return p0, abs(d1) + abs(d2), order, False
 
@@ -435,7 +435,7 @@ def pde_price(
     (price, delta, gamma, vega), solution, steps = results[0]
     prices = tuple(r[0][0] for r in results)
     if refine:
-        price, error, order, extrapolated = _refinement(prices, spot, tol)
+        price, error, order, extrapolated = _refinement(prices, spot)
         status = CONVERGED if error <= tol else NOT_CONVERGED
         difference = prices[0] - prices[1]
     else:
