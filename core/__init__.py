@@ -13,6 +13,8 @@ from .fourier_check import FourierCheckError, lewis_call_price
 from .mc_schemes import SCHEMES
 from .monte_carlo import BLOCK, DEFAULT_SEED, MCResult, expected_negative_step_fraction, mc_price
 from .params import HestonParams
+from .pde import PDEResult, pde_price
+from .products import BarrierOption, EuropeanOption
 from .report import DEFAULT_QUANTILES, variance_report
 from .validation import InputError
 from .variance import euler_max_step, euler_negative_probability, feller_ratio, regime_label
@@ -41,12 +43,15 @@ __all__ = [
     "SCHEMES",
     "TINY_VARIANCE",
     "UNDECIDED",
+    "BarrierOption",
     "Comparison",
+    "EuropeanOption",
     "FourierCheckError",
     "FourierDetails",
     "HestonParams",
     "InputError",
     "MCResult",
+    "PDEResult",
     "__version__",
     "bs_price",
     "cir_stationary",
@@ -64,6 +69,7 @@ __all__ = [
     "implied_vol_reason",
     "lewis_call_price",
     "mc_price",
+    "pde_price",
     "regime_label",
     "step_study",
     "variance_report",

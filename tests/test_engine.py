@@ -148,3 +148,25 @@ def test_refuses_to_overwrite_the_template(tmp_path):
     path = _book(tmp_path, lambda ws, wb: None)
     with pytest.raises(FormulaError, match="must not overwrite"):
         compute_workbook(path, path)
+
+
+def test_finite_difference_barrier_through_a_workbook(tmp_path):
+    # the engine's spilled table equals the core call (deterministic solver)
+    from rootvar.core import BarrierOption, pde_price
+
+    def fill(ws, wb):
+        ws["A1"] = '=ROOTVAR_PDE_PRICE(B20:F20,100,100,1,"call",90,"down","out",,H1:H2)'
+        ws["H1"], ws["H2"] = 0.5, 1.0
+        ws["B20"], ws["C20"], ws["D20"], ws["E20"], ws["F20"] = 0.04, 1.5, 0.04, 0.5, -0.6
+
+    path = _book(tmp_path, fill)
+    report = compute_workbook(path, tmp_path / "out.xlsx")
+    assert report.error_cells == []
+    ws = load_workbook(tmp_path / "out.xlsx")["Main"]
+    direct = pde_price(
+        HestonParams(0.04, 1.5, 0.04, 0.5, -0.6),
+        100.0,
+        BarrierOption("call", 100.0, 1.0, 90.0, "down", "out", 0.0, (0.5, 1.0)),
+    )
+    assert ws["A1"].value == "price" and ws["B1"].value == direct.price
+    assert ws["A3"].value == "status" and ws["B3"].value == direct.status

@@ -1,0 +1,148 @@
+"""Option contracts as small frozen, validated values.
+
+A product is plain data: what is paid, on what, and when.  Pricers (the
+finite-difference solver of :mod:`rootvar.core.pde`, and later Monte Carlo
+exotics) read these fields; they hold no pricing code.  New contracts (Asian,
+forward-start, digital) are added as further frozen dataclasses beside these
+two, each validating itself on construction.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .validation import InputError, as_float_array, check_choice
+
+__all__ = ["DIRECTIONS", "KINDS", "KNOCKS", "BarrierOption", "EuropeanOption"]
+
+KINDS = ("call", "put")
+DIRECTIONS = ("up", "down")
+KNOCKS = ("out", "in")
+
+
+def _positive(name: str, value) -> float:
+    arr = as_float_array(name, value, ">0")
+    if arr.ndim != 0:
+        raise InputError(f"{name} must be a single number, got shape {arr.shape}")
+    return float(arr)
+
+
+def _vanilla_payoff(kind: str, strike: float, spot_at_expiry):
+    s = np.asarray(spot_at_expiry, dtype=float)
+    return np.maximum(s - strike, 0.0) if kind == "call" else np.maximum(strike - s, 0.0)
+
+
+@dataclass(frozen=True)
+class EuropeanOption:
+    """A European call or put.
+
+    Parameters
+    ----------
+    kind : {"call", "put"}
+    strike : float
+        Strike, > 0, in the currency of the spot.
+    maturity : float
+        Time to expiry in years, > 0.
+    """
+
+    kind: str
+    strike: float
+    maturity: float
+
+    def __post_init__(self) -> None:
+        check_choice("kind", self.kind, KINDS)
+        object.__setattr__(self, "strike", _positive("strike", self.strike))
+        object.__setattr__(self, "maturity", _positive("maturity", self.maturity))
+
+    def payoff(self, spot_at_expiry):
+        """``max(S - K, 0)`` for a call, ``max(K - S, 0)`` for a put."""
+        return _vanilla_payoff(self.kind, self.strike, spot_at_expiry)
+
+
+@dataclass(frozen=True)
+class BarrierOption:
+    """A single-barrier call or put, knock-out or knock-in, with an optional rebate.
+
+    Parameters
+    ----------
+    kind : {"call", "put"}
+    strike : float
+        Strike, > 0.
+    maturity : float
+        Time to expiry in years, > 0.
+    barrier : float
+        Barrier level, > 0.
+    direction : {"up", "down"}
+        ``"down"``: the barrier is hit when the spot is at or below it;
+        ``"up"``: at or above it.
+    knock : {"out", "in"}
+        ``"out"``: the option dies at the hit; ``"in"``: it comes alive at
+        the hit and is worthless if the barrier is never hit.
+    rebate : float
+        Cash amount, >= 0.  A knock-out pays it at the hit (at the monitoring
+        date of the hit when monitoring is discrete); a knock-in pays it at
+        expiry when the barrier was never hit.
+    monitoring : sequence of float or None
+        ``None`` (default): the barrier is watched continuously.  Otherwise
+        the monitoring dates in years from today, each in ``(0, maturity]``;
+        they are sorted and stored as a tuple, repeats refused.
+
+    Notes
+    -----
+    Whether the spot is already on the knocked side of the barrier is a fact
+    about the market, not the contract, so the pricer checks it.
+    """
+
+    kind: str
+    strike: float
+    maturity: float
+    barrier: float
+    direction: str
+    knock: str
+    rebate: float = 0.0
+    monitoring: tuple | None = None
+
+    def __post_init__(self) -> None:
+        check_choice("kind", self.kind, KINDS)
+        check_choice("direction", self.direction, DIRECTIONS)
+        check_choice("knock", self.knock, KNOCKS)
+        for name in ("strike", "maturity", "barrier"):
+            object.__setattr__(self, name, _positive(name, getattr(self, name)))
+        rebate = as_float_array("rebate", self.rebate, ">=0")
+        if rebate.ndim != 0:
+            raise InputError(f"rebate must be a single number, got shape {rebate.shape}")
+        object.__setattr__(self, "rebate", float(rebate))
+        if self.monitoring is not None:
+            dates = np.ravel(as_float_array("monitoring", self.monitoring, ">0"))
+            if dates.size == 0:
+                raise InputError("monitoring must hold at least one date, got an empty list")
+            late = dates[dates > self.maturity * (1.0 + 1e-12)]
+            if late.size:
+                raise InputError(
+                    f"monitoring dates must lie in (0, maturity={self.maturity!r}], "
+                    f"got {float(late[0])!r}"
+                )
+            dates = np.sort(np.minimum(dates, self.maturity))
+            if np.any(np.diff(dates) <= 0):
+                raise InputError(f"monitoring dates must differ, got {float(dates[0])!r} twice")
+            object.__setattr__(self, "monitoring", tuple(float(d) for d in dates))
+
+    @property
+    def continuous(self) -> bool:
+        """True when the barrier is watched continuously."""
+        return self.monitoring is None
+
+    def vanilla(self) -> EuropeanOption:
+        """The European option with the same kind, strike and maturity."""
+        return EuropeanOption(self.kind, self.strike, self.maturity)
+
+    def is_hit(self, spot):
+        """True where ``spot`` is at or beyond the barrier (the knock side)."""
+        s = np.asarray(spot, dtype=float)
+        return s <= self.barrier if self.direction == "down" else s >= self.barrier
+
+    def payoff(self, spot_at_expiry):
+        """The vanilla payoff, for the path that was never hit (knock-out)."""
+        return _vanilla_payoff(self.kind, self.strike, spot_at_expiry)
