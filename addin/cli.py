@@ -134,6 +134,12 @@ def _cmd_compute(args) -> int:
     return 3 if report.error_cells else 0
 
 
+def _cmd_calibrate(args) -> int:
+    from .calibrate_command import run_calibrate
+
+    return run_calibrate(args)
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="rootvar", description=__doc__)
     parser.add_argument("--version", action="version", version=f"rootvar {__version__}")
@@ -213,6 +219,10 @@ def build_parser() -> argparse.ArgumentParser:
     )
     ref.add_argument("--quiet", action="store_true", help="no progress, no summary (schedulers)")
     ref.set_defaults(func=_cmd_refresh)
+
+    from .calibrate_command import add_calibrate_parser
+
+    add_calibrate_parser(sub, _cmd_calibrate)
     return parser
 
 

@@ -292,7 +292,7 @@ class _Problem:
         return np.where(np.isfinite(res), res, 1.0), np.where(np.isfinite(jac), jac, 0.0)
 
     def _least_squares(self, pricer, transform, x0, tight):
-        """Levenberg-Marquardt; the residuals and Jacobian share one evaluation."""
+        """Trust-region least squares; the residuals and Jacobian share one evaluation."""
         cache = {}
 
         def both(x):
@@ -418,19 +418,20 @@ def calibrate(
     implied-vol errors from certified prices
     (:func:`rootvar.core.heston_implied_vol`) at the end.
 
-    *Feller by reparameterisation.*  ``v0, kappa, theta`` are fitted on a log
-    scale and ``rho`` as ``tanh``: unbounded everywhere.  With a minimum ratio
-    ``R``, ``vol_of_vol = sqrt(2 kappa theta / R) / sqrt(1 + y^2)`` with ``y``
-    unbounded: the ratio is ``R (1 + y^2) >= R`` by construction and the
-    boundary is the interior point ``y = 0``.  A penalty would let the
-    optimum sit slightly outside the constraint and distort the Jacobian;
-    bounds would need a bounded solver.  When the fit ends near the
-    boundary it is finished on the boundary itself (four parameters,
-    ``vol_of_vol = sqrt(2 kappa theta / R)``), which converges faster than
-    the slack's ``y -> 0``.
+    *Feller by reparameterisation.*  The fit runs in the coordinates
+    ``(ln v0, ln kappa, ln theta, ln R, rho)`` with ``R = 2 kappa theta /
+    vol_of_vol^2`` the Feller ratio itself, so ``vol_of_vol = sqrt(2 kappa theta
+    / R)``.  The constraint ``R >= R_min`` is then a plain bound on one
+    coordinate, which the trust-region reflective solver keeps exactly and can
+    sit on; ``v0``, ``kappa`` and ``theta`` stay unbounded (log scale) and
+    ``rho`` keeps its natural bounds.  A penalty would let the optimum sit
+    slightly outside the constraint and bend the objective near it; a
+    smooth map of an unbounded variable onto ``R >= R_min`` (``R_min + e^y``,
+    or a squared slack) puts the boundary at infinity or at a stationary
+    point, where the solver crawls: a binding constraint is the usual case.
 
-    *Method.*  ``scipy.optimize.least_squares`` (Levenberg-Marquardt) with
-    the analytic Jacobian, from the reasonable start and ``starts`` scrambled
+    *Method.*  ``scipy.optimize.least_squares`` (trust-region reflective,
+    Jacobian scaling) with the analytic Jacobian, from the reasonable start and ``starts`` scrambled
     Sobol points (``scipy.stats.qmc``, seeded).  Each run prices on the
     certified COS grid of its start; at its optimum the grid is checked
     against certified prices and, if it moved, rebuilt and the run resumed.
@@ -448,8 +449,9 @@ def calibrate(
     Cui, Y., del Baño Rollin, S. & Germano, G. (2017). Full and fast
     calibration of the Heston stochastic volatility model. European Journal
     of Operational Research 263(2), 625-638.
-    Moré, J. J. (1978). The Levenberg-Marquardt algorithm: implementation and
-    theory. Numerical Analysis, Lecture Notes in Mathematics 630, 105-116.
+    Branch, M. A., Coleman, T. F. & Li, Y. (1999). A subspace, interior, and
+    conjugate gradient method for large-scale bound-constrained minimization
+    problems. SIAM J. Sci. Comput. 21(1), 1-23.
     """
     began = time.perf_counter()
     label, min_ratio = _feller_mode(feller)
@@ -563,13 +565,18 @@ def _uncertainty(problem: _Problem, run: _Run, err, ok):
     p, transform = run.params, run.transform
     _, grad = run.pricer.evaluate(p)
     chain = transform.chain(run.x, p)
+    fitted = transform.names
+    if transform.min_ratio is not None and p.feller_ratio <= transform.min_ratio * (1 + 1e-9):
+        # on the constraint the ratio is held, not estimated: four free directions
+        chain = np.delete(chain, 3, axis=1)
+        fitted = fitted[:3] + fitted[4:]
     # Jacobian of the weighted implied-vol residuals in the fitted directions
     jac = (grad * problem.scale[:, None]) @ chain
     jac = jac[ok]
     n, k = jac.shape
     weighted = np.sqrt(problem.q.weight[ok]) * err[ok]
     s2 = float(weighted @ weighted) / max(n - k, 1)
-    # columns per relative move (rho: per unit of atanh rho, close to absolute)
+    # columns per relative move of v0, kappa, theta and R; per unit of rho
     _, sing, vt = np.linalg.svd(jac, full_matrices=False)
     with np.errstate(divide="ignore"):
         inv = np.where(sing > 0, 1.0 / sing**2, np.inf)
@@ -590,7 +597,6 @@ def _uncertainty(problem: _Problem, run: _Run, err, ok):
     weakest = sing[-1] * 0.1 / np.sqrt(n) if sing.size else 0.0
     if weakest < IDENTIFY_RMS:
         direction = vt[-1] / np.max(np.abs(vt[-1]))
-        fitted = transform.names
         parts = [
             f"{name} {d:+.2f}" for name, d in zip(fitted, direction, strict=True) if abs(d) >= 0.25
         ]
