@@ -517,11 +517,11 @@ def _finish(problem: _Problem, run: _Run, label, min_ratio, tried, at_best, bega
     converged = status == "converged"
     missing = ~np.isfinite(err)
     if missing.any():
-        status += (
-            f"; {int(missing.sum())} quote(s) have no certified model volatility (model price "
+        status += f"; {int(missing.sum())} quote(s) without a certified model volatility"
+        notes.append(
+            f"{int(missing.sum())} quote(s) have no certified model volatility (model price "
             "below 1e-9 x spot) and are left out of the RMSE and largest error"
         )
-        notes.append(status)
     ok = ~missing
     rmse = float(np.sqrt(np.sum(w[ok] * err[ok] ** 2) / np.sum(w[ok])) * _BP)
     max_abs = float(np.max(np.abs(err[ok])) * _BP) if ok.any() else float("nan")
