@@ -15,6 +15,7 @@ from scipy.optimize import least_squares
 from scipy.special import ndtr
 from scipy.stats import qmc
 
+from .black_scholes import implied_vol_reason
 from .cir_law import cir_transition
 from .fourier import heston_implied_vol, heston_price_details
 from .heston_gradient import GRID_TOL, PARAM_NAMES, SurfacePricer, grid_from_details
@@ -44,6 +45,8 @@ IDENTIFY_RMS = 1e-4
 #: per quote moves it by less than this (relative; absolute for rho).
 IDENTIFY_REL_SE = 0.01
 _BP = 1e4
+#: Out-of-the-money prices below this (x spot) give no volatility, as in heston_implied_vol.
+_PRICE_FLOOR = 1e-9
 
 
 @dataclass(frozen=True)
@@ -214,6 +217,7 @@ class _Run:
     certified: bool
     status: str
     pricer: SurfacePricer
+    details: object  # certified puts at ``params`` (FourierDetails)
 
 
 class _Problem:
@@ -257,8 +261,10 @@ class _Problem:
         x = transform.start(start)
         status = "converged"
         certified = False
-        for _ in range(MAX_STAGES if certify else 1):
-            x, ok = self._least_squares(pricer, transform, x, certify)
+        # a loose fit on the start's grid first, then tight fits on grids certified
+        # at the optimum found, so no precision is spent on a grid about to change
+        for stage in range(MAX_STAGES if certify else 1):
+            x, ok = self._least_squares(pricer, transform, x, tight=stage > 0)
             status = "converged" if ok else "not converged: evaluation limit reached"
             if not certify:
                 break
@@ -269,16 +275,18 @@ class _Problem:
                 break
             put, _ = pricer.evaluate(p)
             put = put - np.where(pricer.call_side, pricer.parity, 0.0)
-            if np.max(np.abs(put - details.price)) <= GRID_TOL * self.spot:
+            on_grid = np.max(np.abs(put - details.price)) <= GRID_TOL * self.spot
+            if on_grid and stage > 0:
                 certified = True
                 break
-            pricer = self.pricer(p, details)  # the optimum moved off the grid's safe zone
+            if not on_grid:
+                pricer = self.pricer(p, details)  # the optimum moved off the grid's safe zone
         else:
             status = "not converged: the COS grid kept moving with the optimum"
         p = transform.params(x)
         res, _ = self._residuals(pricer, x, transform)
         rmse = float(np.sqrt(np.mean(res * res)) * _BP)
-        return _Run(p, x, transform, rmse, certified, status, pricer)
+        return _Run(p, x, transform, rmse, certified, status, pricer, details)
 
     def _residuals(self, pricer, x, transform, with_jac=False):
         with self._lock:
@@ -505,9 +513,12 @@ def _workers(workers, jobs) -> int:
 def _finish(problem: _Problem, run: _Run, label, min_ratio, tried, at_best, began):
     q, p = problem.q, run.params
     spot, rate, div_yield = problem.spot, problem.rate, problem.div_yield
-    model = np.asarray(
-        heston_implied_vol(p, spot, q.strike, q.maturity, rate, div_yield), dtype=float
-    ).reshape(-1)
+    if run.certified:
+        model = _certified_vols(problem, run.details)
+    else:
+        model = np.asarray(
+            heston_implied_vol(p, spot, q.strike, q.maturity, rate, div_yield), dtype=float
+        ).reshape(-1)
     err = model - q.implied_vol
     w = q.weight
     notes = list(q.warnings)
@@ -558,6 +569,30 @@ def _finish(problem: _Problem, run: _Run, label, min_ratio, tried, at_best, bega
         starts_at_best=int(at_best),
         skipped_quotes=q.skipped,
     )
+
+
+def _certified_vols(problem: _Problem, details) -> np.ndarray:
+    """Implied vols of the certified puts at the fit, as :func:`heston_implied_vol` gives them.
+
+    The put strip certified at the optimum is already at hand, so it is not
+    priced again: out-of-the-money price (put below the forward, call by
+    parity above it), inverted by :func:`rootvar.core.implied_vol_reason`,
+    NaN below ``1e-9 x spot`` where the certified accuracy says nothing
+    about the volatility.  A test holds this equal to ``heston_implied_vol``.
+    """
+    q = problem.q
+    spot, rate, div_yield = problem.spot, problem.rate, problem.div_yield
+    put = np.asarray(details.price, dtype=float)
+    spot_df = spot * np.exp(-div_yield * q.maturity)
+    strike_df = q.strike * np.exp(-rate * q.maturity)
+    gap = spot_df - strike_df
+    call = np.clip(put + gap, np.maximum(gap, 0.0), spot_df)
+    use_put = q.strike < spot * np.exp((rate - div_yield) * q.maturity)
+    vol_put, _ = implied_vol_reason(put, spot, q.strike, q.maturity, rate, div_yield, "put")
+    vol_call, _ = implied_vol_reason(call, spot, q.strike, q.maturity, rate, div_yield, "call")
+    otm = np.where(use_put, put, call)
+    vol = np.where(use_put, vol_put, vol_call)
+    return np.where(otm >= _PRICE_FLOOR * spot, vol, np.nan)
 
 
 def _uncertainty(problem: _Problem, run: _Run, err, ok):

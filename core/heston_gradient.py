@@ -245,18 +245,17 @@ class SurfacePricer:
         ):
             raise InputError("maturity must be one of the grid's maturities, got another")
         self.n_quotes = strike.size
-        n_max = int(grid.terms.max())
-        m = times.size
-        width = grid.upper - grid.lower
-        k = np.arange(n_max)
-        self.omega = k[None, :] * (np.pi / width[:, None])
-        live = k[None, :] < grid.terms[:, None]
-        self.omega = np.where(live, self.omega, 0.0)
-        # e^{-i omega a}, with the first term halved (the primed sum) and dead terms zeroed
-        phase = np.exp(-1j * self.omega * grid.lower[:, None])
-        phase[:, 0] *= 0.5
-        self.phase = np.where(live, phase, 0.0)
-        self.groups = [np.flatnonzero(where == i) for i in range(m)]
+        # every maturity's frequencies laid end to end: no padding to the longest
+        ends = np.concatenate([[0], np.cumsum(grid.terms)])
+        self.spans = [slice(int(ends[i]), int(ends[i + 1])) for i in range(times.size)]
+        k = np.concatenate([np.arange(n) for n in grid.terms])
+        owner = np.repeat(np.arange(times.size), grid.terms)
+        self.omega = k * (np.pi / (grid.upper - grid.lower))[owner]
+        self.times = times[owner]
+        # e^{-i omega a}, with each maturity's first term halved (the primed sum)
+        self.phase = np.exp(-1j * self.omega * grid.lower[owner])
+        self.phase[ends[:-1]] *= 0.5
+        self.groups = [np.flatnonzero(where == i) for i in range(times.size)]
         forward = self.spot * np.exp((self.rate - self.div_yield) * maturity)
         self.call_side = strike >= forward
         self.parity = self.spot * np.exp(-self.div_yield * maturity) - strike * np.exp(
@@ -266,7 +265,7 @@ class SurfacePricer:
         for i, idx in enumerate(self.groups):
             self.payoff.append(
                 _put_coefficients(
-                    self.omega[i],
+                    self.omega[self.spans[i]],
                     grid.lower[i],
                     grid.upper[i],
                     np.log(self.spot / strike[idx]),
@@ -286,14 +285,13 @@ class SurfacePricer:
         grad : ndarray, shape (n_quotes, 5)
             Derivatives in the order of :data:`PARAM_NAMES`.
         """
-        times = self.grid.maturities[:, None]
-        log_cf, dlog = log_cf_gradient(self.omega, params, times, self.rate - self.div_yield)
+        log_cf, dlog = log_cf_gradient(self.omega, params, self.times, self.rate - self.div_yield)
         cf = _exp(log_cf.real, log_cf.imag) * self.phase
-        coef = np.concatenate([cf.real[None], (dlog * cf[None]).real], axis=0)  # (6, m, n)
+        coef = np.concatenate([cf.real[None], (dlog * cf[None]).real], axis=0)  # (6, terms)
         out = np.empty((6, self.n_quotes))
         for i, idx in enumerate(self.groups):
             if idx.size:
-                out[:, idx] = coef[:, i, :] @ self.payoff[i]
+                out[:, idx] = coef[:, self.spans[i]] @ self.payoff[i]
         price = out[0] + np.where(self.call_side, self.parity, 0.0)
         return price, out[1:].T
 
