@@ -474,6 +474,8 @@ def calibrate(
         if isinstance(quotes, QuoteSet)
         else read_quotes(quotes, spot, rate, div_yield, weights)
     )
+    if isinstance(quotes, QuoteSet) and weights is not None:
+        raise InputError("weights must be left out when quotes is a QuoteSet, got both")
     problem = _Problem(q, spot, rate, div_yield)
     first = start or _reasonable_start(q, spot, rate, div_yield)
     points = [first, *_sobol_starts(first, n_starts, seed)]
@@ -691,8 +693,9 @@ def calibration_tradeoff(
         negative probability from v0 at ``dt``, largest safe Euler step
         (years), probability that the variance is below ``near_zero`` at 1
         year (exact CIR law), status, starts at the best optimum, and where
-        the constraint costs most.  Columns ``free``, ``constrained`` and
-        ``cost`` (constrained minus free, for the numeric rows).
+        the constraint costs most.  Columns ``free``, the constraint's label
+        (``enforce`` or ``ratio >= R``) and ``cost`` (constrained minus free,
+        for the numeric rows).
         ``DataFrame.attrs`` holds both :class:`Calibration` objects.
 
     Notes
