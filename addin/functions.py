@@ -569,11 +569,11 @@ _CAL_DOCS = dict(
     div_yield="continuous dividend yield (empty: 0)",
     feller="free, enforce, or a minimum Feller ratio such as 0.5 (empty: free)",
     starts="Sobol start points besides the first (empty: 8; 0 for one start)",
-    seed="seed of the start points (empty: the library default)",
+    sobol_seed="seed of the Sobol start points (empty: 20260105)",
 )
 
 
-def _feller_cell(value, default: str):
+def _feller_cell(name: str, value, default: str):
     """free / enforce text, or a minimum ratio > 0."""
     if isinstance(value, (list, tuple)):
         cells = [c for c in np.ravel(np.array(value, dtype=object)) if c is not None]
@@ -585,15 +585,15 @@ def _feller_cell(value, default: str):
         if key in ("free", "enforce"):
             return key
         try:
-            return to_number("feller", float(key), ">0")
+            return to_number(name, float(key), ">0")
         except ValueError:
             raise CellError(
-                f"feller must be free, enforce or a minimum ratio > 0, got the text {value!r}"
+                f"{name} must be free, enforce or a minimum ratio > 0, got the text {value!r}"
             ) from None
-    return to_number("feller", value, ">0")
+    return to_number(name, value, ">0")
 
 
-def _cal_args(quotes, spot, rate, div_yield, feller, starts, seed, default_feller):
+def _cal_args(quotes, spot, rate, div_yield, feller, starts, sobol_seed, default_feller):
     from rootvar.core.calibration import DEFAULT_CALIBRATION_SEED
 
     table = to_table("quotes", quotes)
@@ -603,9 +603,11 @@ def _cal_args(quotes, spot, rate, div_yield, feller, starts, seed, default_felle
         to_number("spot", spot, ">0"),
         to_number("rate", rate, default=0.0),
         to_number("div_yield", div_yield, default=0.0),
-        _feller_cell(feller, default_feller),
+        _feller_cell(
+            "feller" if default_feller == "free" else "constraint", feller, default_feller
+        ),
         to_int("starts", starts, 8, 0, 64),
-        to_int("seed", seed, DEFAULT_CALIBRATION_SEED, 0),
+        to_int("sobol_seed", sobol_seed, DEFAULT_CALIBRATION_SEED, 0),
     )
 
 
@@ -646,9 +648,13 @@ def _cached_tradeoff(key, spot, rate, div_yield, feller, starts, seed):
     "params of every other function; then the fit, standard errors, status and warnings",
     **_CAL_DOCS,
 )
-def ROOTVAR_CALIBRATE(quotes, spot, rate=None, div_yield=None, feller=None, starts=None, seed=None):
+def ROOTVAR_CALIBRATE(
+    quotes, spot, rate=None, div_yield=None, feller=None, starts=None, sobol_seed=None
+):
     """Heston parameters fitted to implied volatilities, with the fit and its warnings."""
-    c = _cached_calibration(*_cal_args(quotes, spot, rate, div_yield, feller, starts, seed, "free"))
+    c = _cached_calibration(
+        *_cal_args(quotes, spot, rate, div_yield, feller, starts, sobol_seed, "free")
+    )
     p = c.params
     rows = [[name, getattr(p, name)] for name in ("v0", "kappa", "theta", "vol_of_vol", "rho")]
     rows += [
@@ -674,25 +680,33 @@ def ROOTVAR_CALIBRATE(quotes, spot, rate=None, div_yield=None, feller=None, star
     **_CAL_DOCS,
 )
 def ROOTVAR_CALIBRATION_RESIDUALS(
-    quotes, spot, rate=None, div_yield=None, feller=None, starts=None, seed=None
+    quotes, spot, rate=None, div_yield=None, feller=None, starts=None, sobol_seed=None
 ):
     """Quote-by-quote implied-vol errors of the fit that ROOTVAR_CALIBRATE returns."""
-    c = _cached_calibration(*_cal_args(quotes, spot, rate, div_yield, feller, starts, seed, "free"))
+    c = _cached_calibration(
+        *_cal_args(quotes, spot, rate, div_yield, feller, starts, sobol_seed, "free")
+    )
     return _table(c.residuals)
 
 
 @sheet_function(
     "table: header row, then the parameters, fit and variance checks of the free and the "
     "constrained fit, with the cost of the constraint",
-    **{**_CAL_DOCS, "feller": "enforce, or a minimum Feller ratio such as 0.5 (empty: enforce)"},
+    quotes=_QUOTES_DOC,
+    spot=_CAL_DOCS["spot"],
+    rate=_CAL_DOCS["rate"],
+    div_yield=_CAL_DOCS["div_yield"],
+    constraint="enforce, or a minimum Feller ratio such as 0.5 (empty: enforce)",
+    starts=_CAL_DOCS["starts"],
+    sobol_seed=_CAL_DOCS["sobol_seed"],
 )
 def ROOTVAR_FELLER_TRADEOFF(
-    quotes, spot, rate=None, div_yield=None, feller=None, starts=None, seed=None
+    quotes, spot, rate=None, div_yield=None, constraint=None, starts=None, sobol_seed=None
 ):
     """What enforcing Feller costs in implied-vol bp and buys in variance behaviour."""
-    args = _cal_args(quotes, spot, rate, div_yield, feller, starts, seed, "enforce")
+    args = _cal_args(quotes, spot, rate, div_yield, constraint, starts, sobol_seed, "enforce")
     if args[4] == "free":
-        raise CellError("feller must be enforce or a minimum ratio for a trade-off, got free")
+        raise CellError("constraint must be enforce or a minimum ratio for a trade-off, got free")
     table = _cached_tradeoff(*args)
     rows = [["quantity", *[str(c) for c in table.columns]]]
     rows += [

@@ -75,7 +75,7 @@ def test_bad_feller_in_a_cell(quotes):
     out = call("ROOTVAR_CALIBRATE", _range(quotes), 100.0, None, None, "sometimes")
     assert out.startswith(MARK) and "feller must be free, enforce" in out
     out = call("ROOTVAR_FELLER_TRADEOFF", _range(quotes), 100.0, None, None, "free")
-    assert out.startswith(MARK) and "trade-off" in out
+    assert out.startswith(MARK) and "constraint must be enforce" in out
 
 
 def test_command_prints_the_tradeoff_and_writes_params(quotes, tmp_path, capsys):

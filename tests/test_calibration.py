@@ -15,7 +15,7 @@ from rootvar.core import (
     heston_implied_vol,
 )
 from rootvar.core.calibration import calibrate, calibration_tradeoff
-from rootvar.core.quotes import StaticArbitrageWarning
+from rootvar.core.quotes import StaticArbitrageWarning, read_quotes
 
 SPOT, RATE, DIV = 100.0, 0.02, 0.01
 NAMES = ("v0", "kappa", "theta", "vol_of_vol", "rho")
@@ -172,6 +172,8 @@ def test_bad_arguments_are_refused():
         calibrate(quotes, SPOT, start=(0.04, 1.0, 0.04, 0.5, -0.5))
     with pytest.raises(InputError, match="spot must be > 0"):
         calibrate(quotes, -1.0)
+    with pytest.raises(InputError, match="weights must be left out when quotes is a QuoteSet"):
+        calibrate(read_quotes(quotes, SPOT), SPOT, weights=np.ones(len(quotes)))
     with pytest.raises(InputError, match="feller must be 'enforce' or a minimum ratio"):
         calibration_tradeoff(quotes, SPOT, feller="free")
     bad = quotes.copy()
