@@ -310,7 +310,7 @@ class _Problem:
                 cache[key] = self._residuals(pricer, x, transform, True)
             return cache[key]
 
-        tol = 1e-12 if tight else 1e-9
+        tol = 1e-12 if tight else 1e-6
         out = least_squares(
             lambda x: both(x)[0],
             x0,
