@@ -144,6 +144,13 @@ class _Coordinates:
         if self.min_ratio is not None:
             ratio = max(ratio, self.min_ratio)  # exp(ln R_min) may round below R_min
         vol = np.sqrt(2.0 * kappa * theta / ratio)
+        if self.min_ratio is not None:
+            # the ratio recomputed from the parameters must not round below the bound,
+            # or a fit on the bound would read as a breach: step vol_of_vol down an ulp
+            for _ in range(4):
+                if 2.0 * kappa * theta / vol**2 >= self.min_ratio:
+                    break
+                vol = np.nextafter(vol, 0.0)
         return HestonParams(v0, kappa, theta, vol, float(np.clip(x[4], -1.0, 1.0)))
 
     def chain(self, x, p):
