@@ -301,6 +301,9 @@ class _Problem:
         p = transform.params(x)
         price, grad = pricer.evaluate(p)
         res = (price - self.market) * self.scale
+        # a trial point far outside the grid's reach can overflow; a large finite
+        # residual (100 vol points) makes the solver step back instead of stopping,
+        # and the reported fit is recomputed from certified prices anyway
         if not with_jac:
             return np.where(np.isfinite(res), res, 1.0), None
         jac = (grad * self.scale[:, None]) @ transform.chain(x, p)
