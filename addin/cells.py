@@ -30,6 +30,7 @@ __all__ = [
     "to_number",
     "to_numbers",
     "to_params",
+    "to_table",
     "to_text_list",
 ]
 
@@ -249,3 +250,27 @@ def to_params(name: str, value) -> HestonParams:
         return HestonParams(**numbers_)
     except InputError as exc:
         raise CellError(f"{name}: {exc}") from exc
+
+
+def to_table(name: str, value) -> dict:
+    """A range whose first row holds column names, as ``{column: [values]}``.
+
+    Rows whose cells are all empty are dropped; other empty cells stay
+    ``None`` so the core can skip and count them.  Used for the quotes of a
+    calibration (maturity, strike, implied_vol, ...).
+    """
+    if not isinstance(value, (list, tuple)) or not value or not isinstance(value[0], (list, tuple)):
+        raise CellError(
+            f"{name} must be a range with a header row and one row per item, got {_describe(value)}"
+        )
+    rows = [list(r) for r in value]
+    header = rows[0]
+    if not all(isinstance(h, str) and h.strip() for h in header):
+        raise CellError(f"{name}: the first row must name every column, got {header!r}")
+    keys = [h.strip() for h in header]
+    if len(set(k.lower() for k in keys)) != len(keys):
+        raise CellError(f"{name}: column names must not repeat, got {keys!r}")
+    body = [r for r in rows[1:] if any(c is not None and c != "" for c in r)]
+    if not body:
+        raise CellError(f"{name} must hold at least one row below its header, got none")
+    return {k: [r[j] if j < len(r) else None for r in body] for j, k in enumerate(keys)}

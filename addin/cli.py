@@ -195,6 +195,12 @@ def _cmd_compute(args) -> int:
     return 3 if report.error_cells else 0
 
 
+def _cmd_calibrate(args) -> int:
+    from .calibrate_command import run_calibrate
+
+    return run_calibrate(args)
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="rootvar", description=__doc__)
     parser.add_argument("--version", action="version", version=f"rootvar {__version__}")
@@ -302,6 +308,9 @@ def build_parser() -> argparse.ArgumentParser:
     hist.add_argument("--since", default=None, help="first as-of date, YYYY-MM-DD")
     hist.add_argument("--out", default=None, help="FILE.csv or FILE.xlsx (default: print)")
     hist.set_defaults(func=_cmd_history)
+    from .calibrate_command import add_calibrate_parser
+
+    add_calibrate_parser(sub, _cmd_calibrate)
     return parser
 
 

@@ -187,6 +187,9 @@ def build_parameter_check(path: Path) -> None:
     quant.height, quant.width = 7, 14
     law.add_chart(quant, "L23")
     _widths(law, {"A": 30, "B": 12})
+    from .workbook_calibration import add_calibration_sheet
+
+    add_calibration_sheet(wb)
     path.parent.mkdir(parents=True, exist_ok=True)
     save_deterministic(wb, path)
 

@@ -7,14 +7,17 @@ xlwings or openpyxl.
 from importlib.metadata import PackageNotFoundError, version
 
 from .black_scholes import bs_price, implied_vol, implied_vol_reason
+from .calibration import Calibration, calibrate, calibration_tradeoff
 from .cir_law import TINY_VARIANCE, cir_stationary, cir_transition, cir_transition_shapes
 from .fourier import FourierDetails, heston_implied_vol, heston_price, heston_price_details
 from .fourier_check import FourierCheckError, lewis_call_price
+from .heston_gradient import heston_price_gradient
 from .mc_schemes import SCHEMES
 from .monte_carlo import BLOCK, DEFAULT_SEED, MCResult, expected_negative_step_fraction, mc_price
 from .params import HestonParams
 from .pde import PDEResult, pde_price
 from .products import BarrierOption, EuropeanOption
+from .quotes import QuoteSet, StaticArbitrageWarning, read_quotes
 from .report import DEFAULT_QUANTILES, variance_report
 from .validation import InputError
 from .variance import euler_max_step, euler_negative_probability, feller_ratio, regime_label
@@ -44,6 +47,7 @@ __all__ = [
     "TINY_VARIANCE",
     "UNDECIDED",
     "BarrierOption",
+    "Calibration",
     "Comparison",
     "EuropeanOption",
     "FourierCheckError",
@@ -52,8 +56,12 @@ __all__ = [
     "InputError",
     "MCResult",
     "PDEResult",
+    "QuoteSet",
+    "StaticArbitrageWarning",
     "__version__",
     "bs_price",
+    "calibrate",
+    "calibration_tradeoff",
     "cir_stationary",
     "cir_transition",
     "cir_transition_shapes",
@@ -65,11 +73,13 @@ __all__ = [
     "heston_implied_vol",
     "heston_price",
     "heston_price_details",
+    "heston_price_gradient",
     "implied_vol",
     "implied_vol_reason",
     "lewis_call_price",
     "mc_price",
     "pde_price",
+    "read_quotes",
     "regime_label",
     "step_study",
     "variance_report",

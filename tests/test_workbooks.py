@@ -77,3 +77,31 @@ def test_structurer_workbook_values_agree_with_the_core(computed):
     biases = [study.cell(row=r, column=7).value for r in range(8, 13)]  # euler_absorb rows
     assert np.all(np.array(biases) > 100)  # absorption is biased by hundreds of bp here
     assert len(study._charts) == 1
+
+
+def test_smile_fit_sheet_agrees_with_the_core(computed):
+    import warnings
+
+    from rootvar.addin.workbook_calibration import SHEET, invented_smile
+    from rootvar.core import calibrate
+
+    _, wb, _ = computed[PARAMETER_CHECK]
+    ws = wb[SHEET]
+    m = next(m for m in demo_models() if m.model_id == "ALD-EQX")
+    quotes = [
+        dict(zip(("maturity", "strike", "implied_vol"), q, strict=True)) for q in invented_smile()
+    ]
+    assert 7 * 9 <= len(quotes) <= 8 * 11
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # the invented smile is free of static arbitrage
+        free = calibrate(quotes, m.spot, m.rate, m.div_yield)
+    for i, name in enumerate(("v0", "kappa", "theta", "vol_of_vol", "rho")):
+        assert ws.cell(row=5 + i, column=5).value == name
+        assert ws.cell(row=5 + i, column=6).value == pytest.approx(getattr(free.params, name))
+    assert ws["F12"].value == pytest.approx(free.rmse_bp)
+    assert ws["I10"].value >= 1 - 1e-12  # the constrained fit keeps Feller
+    assert (
+        ws["L5"].value == pytest.approx(ws["I12"].value - ws["F12"].value) and ws["L5"].value >= 0
+    )
+    assert ws["E26"].value == "quantity" and ws["E48"].value == "maturity"
+    assert len(ws._charts) == 2
