@@ -219,7 +219,7 @@ def price_blocks(gens, sizes, anti, kind, fmap, c, v0, steps, market, rho, strik
     for b in prange(n_blocks):
         size = sizes[b]
         gen = gens[b]
-        v, int_var, mart, adj, touched, negatives, failed = block_paths(
+        _, int_var, mart, adj, touched, negatives, failed = block_paths(
             gen, size, anti, kind, fmap, c, v0, steps
         )
         z = np.zeros(size)
