@@ -26,6 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .black_scholes import implied_vol_reason
+from .cos_kernels import cf_array, fourier_sums
 from .fourier_check import lewis_call_price
 from .heston_cf import heston_log_cf, log_return_cumulants
 from .params import HestonParams
@@ -44,8 +45,6 @@ RANGE_TOL = 1e-10
 PRICE_FLOOR = 1e-9
 #: Most COS terms per maturity before the check method takes over.
 MAX_TERMS = 1 << 19
-#: Frequencies per characteristic-function call: bounds the temporaries.
-CF_CHUNK = 1 << 13
 
 
 @dataclass(frozen=True)
@@ -95,48 +94,22 @@ def _cf_cutoffs(params, maturities, drift, max_strike, spot):
 
 
 def _cf_values(omega, params, maturity, drift):
-    """The characteristic function at real ``omega``, in chunks of :data:`CF_CHUNK`.
-
-    Hard corners (a day, vol_of_vol 2, rho near +-1) need some 10^5 terms;
-    chunks keep the twenty-odd temporaries of the formula small.
-    """
-    out = np.empty(omega.size, dtype=complex)
-    for i in range(0, omega.size, CF_CHUNK):
-        part = slice(i, i + CF_CHUNK)
-        out[part] = np.exp(heston_log_cf(omega[part], params, maturity, drift))
-    return out
-
-
-def _powers(base, count):
-    """``base[:, None] ** arange(count)`` by running products.
-
-    The ``j``-th power carries about ``j`` roundings, so callers keep
-    ``count`` near ``sqrt(N)`` (relative error about 1e-13 at N = 2^19).
-    """
-    out = np.empty((base.size, count), dtype=complex)
-    out[:, 0] = 1.0
-    out[:, 1:] = base[:, None]
-    np.cumprod(out[:, 1:], axis=1, out=out[:, 1:])
-    return out
+    """The characteristic function at real ``omega`` (compiled, no temporaries)."""
+    p = params
+    model = np.array([p.kappa, p.theta, p.vol_of_vol, p.rho, p.v0])
+    return cf_array(omega, float(maturity), model, float(drift))
 
 
 def _fourier_sums(angle, coef):
     """``sum_k coef[k, p] exp(i k angle[m])`` for every m and column p.
 
-    Splits ``k = l J + j`` (``J ~ sqrt(N)``): the sum over ``l`` for every
-    ``j`` is one matrix product with the coefficients as stored, and the
-    unit waves are running products of ``M (J + N / J)`` numbers, so only
-    ``2 M`` complex exponentials are taken instead of ``M N``.
+    Splits ``k = l J + j`` (``J ~ sqrt(N)``) so that only ``2 M`` complex
+    exponentials are taken instead of ``M N``; see
+    :func:`rootvar.core.cos_kernels.fourier_sums`.
     """
-    n, cols = coef.shape
-    near_n = max(1, int(np.ceil(np.sqrt(n))))
-    far_n = -(-n // near_n)
-    padded = np.zeros((far_n * near_n, cols), dtype=complex)
-    padded[:n] = coef
-    near = _powers(np.exp(1j * angle), near_n)  # e^{i j angle}
-    far = _powers(np.exp(1j * near_n * angle), far_n)  # e^{i l J angle}
-    partial = (far @ padded.reshape(far_n, near_n * cols)).reshape(angle.size, near_n, cols)
-    return (near[:, None, :] @ partial)[:, 0, :]
+    return fourier_sums(
+        np.ascontiguousarray(angle, dtype=float), np.ascontiguousarray(coef, dtype=complex)
+    )
 
 
 def _phases(step, count):

@@ -23,7 +23,7 @@ import numpy as np
 
 from .numba_setup import numba
 
-__all__ = ["block_paths", "price_blocks"]
+__all__ = ["block_paths", "price_block"]
 
 njit = numba.njit
 prange = numba.prange
@@ -66,7 +66,7 @@ def _uniforms(gen, out, size, anti):
         out[half + i] = LAST_UNIFORM - out[i]
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def block_paths(gen, size, anti, kind, fmap, c, v0, steps):
     """Every step of one block of paths.
 
@@ -201,59 +201,56 @@ def _ndtr(a):
     return 1.0 - y if x > 0.0 else y
 
 
-@njit(cache=True, parallel=True)
-def price_blocks(gens, sizes, anti, kind, fmap, c, v0, steps, market, rho, strikes, conditional):
-    """Payoff sums of several blocks, one block per numba thread at a time.
+@njit(cache=True, nogil=True)
+def price_block(gen, size, anti, kind, fmap, c, v0, steps, market, rho, strikes, conditional):
+    """Payoff sums of one block of paths; runs without the GIL.
 
     ``market`` holds ``(ln spot, (rate - div) T, sign, discount factor)``
-    with sign +1 for calls and -1 for puts.  Returns per block the sums and
-    sums of squares per strike (of pair averages with ``anti``), the number
-    of summed values, and the touched / negative / failed counts.
+    with sign +1 for calls and -1 for puts.  Returns the sums and sums of
+    squares per strike (of pair averages with ``anti``) and the counts
+    ``(values summed, touched paths, negative updates, failed corrections)``.
     """
-    n_blocks, n_k = len(sizes), strikes.size
-    sums = np.zeros((n_blocks, n_k))
-    squares = np.zeros((n_blocks, n_k))
-    counts = np.zeros((n_blocks, 4), dtype=np.int64)
+    n_k = strikes.size
+    sums = np.zeros(n_k)
+    squares = np.zeros(n_k)
+    counts = np.zeros(4, dtype=np.int64)
     log_spot, carry, sign, disc = market[0], market[1], market[2], market[3]
     log_k = np.log(strikes)
-    for b in prange(n_blocks):
-        size = sizes[b]
-        gen = gens[b]
-        _, int_var, mart, adj, touched, negatives, failed = block_paths(
-            gen, size, anti, kind, fmap, c, v0, steps
-        )
-        z = np.zeros(size)
-        if not conditional:
-            _normals(gen, z, size, anti)
-        values = np.empty((size, n_k))
-        for i in range(size):
-            root = math.sqrt(max((1.0 - rho * rho) * int_var[i], 0.0))
-            if conditional:
-                # Black-Scholes given the variance path (Willard 1997)
-                log_fwd = log_spot + carry + adj[i] + rho * mart[i] - 0.5 * rho * rho * int_var[i]
-                fwd = math.exp(log_fwd)
-                for k in range(n_k):
-                    if root > 0.0:
-                        d1 = (log_fwd - log_k[k]) / root + 0.5 * root
-                        d2 = d1 - root
-                        pay = sign * (fwd * _ndtr(sign * d1) - strikes[k] * _ndtr(sign * d2))
-                    else:
-                        pay = max(sign * (fwd - strikes[k]), 0.0)
-                    values[i, k] = disc * pay
-            else:
-                log_s = log_spot + carry + adj[i] - 0.5 * int_var[i] + rho * mart[i] + root * z[i]
-                s_t = math.exp(log_s)
-                for k in range(n_k):
-                    values[i, k] = disc * max(sign * (s_t - strikes[k]), 0.0)
-        half = size // 2
-        used = half if anti else size
-        for i in range(used):
+    _, int_var, mart, adj, touched, negatives, failed = block_paths(
+        gen, size, anti, kind, fmap, c, v0, steps
+    )
+    z = np.zeros(size)
+    if not conditional:
+        _normals(gen, z, size, anti)
+    values = np.empty((size, n_k))
+    for i in range(size):
+        root = math.sqrt(max((1.0 - rho * rho) * int_var[i], 0.0))
+        if conditional:
+            # Black-Scholes given the variance path (Willard 1997)
+            log_fwd = log_spot + carry + adj[i] + rho * mart[i] - 0.5 * rho * rho * int_var[i]
+            fwd = math.exp(log_fwd)
             for k in range(n_k):
-                x = 0.5 * (values[i, k] + values[half + i, k]) if anti else values[i, k]
-                sums[b, k] += x
-                squares[b, k] += x * x
-        counts[b, 0] = used
-        counts[b, 1] = touched
-        counts[b, 2] = negatives
-        counts[b, 3] = failed
+                if root > 0.0:
+                    d1 = (log_fwd - log_k[k]) / root + 0.5 * root
+                    d2 = d1 - root
+                    pay = sign * (fwd * _ndtr(sign * d1) - strikes[k] * _ndtr(sign * d2))
+                else:
+                    pay = max(sign * (fwd - strikes[k]), 0.0)
+                values[i, k] = disc * pay
+        else:
+            log_s = log_spot + carry + adj[i] - 0.5 * int_var[i] + rho * mart[i] + root * z[i]
+            s_t = math.exp(log_s)
+            for k in range(n_k):
+                values[i, k] = disc * max(sign * (s_t - strikes[k]), 0.0)
+    half = size // 2
+    used = half if anti else size
+    for i in range(used):
+        for k in range(n_k):
+            x = 0.5 * (values[i, k] + values[half + i, k]) if anti else values[i, k]
+            sums[k] += x
+            squares[k] += x * x
+    counts[0] = used
+    counts[1] = touched
+    counts[2] = negatives
+    counts[3] = failed
     return sums, squares, counts

@@ -6,10 +6,14 @@ every random number it ever uses from its own generator
 ``numpy.random.Generator(SFC64(SeedSequence(seed).spawn(n_blocks)[j]))``, in
 a fixed order (each step's variance draws, the same kinds on every step,
 then the terminal log-price normal).  Each block runs through every step in
-compiled code (:mod:`rootvar.core.mc_kernels`) on one of numba's threads;
-chunks only decide how many blocks one call hands to the threads, and block
-sums are added in block order, so neither the chunk size nor the number of
-threads changes a single bit of the result.  SFC64 is numpy's fastest bit
+compiled code (:mod:`rootvar.core.mc_kernels`) that releases the GIL, on
+``numba.get_num_threads()`` threads (set it with ``numba.set_num_threads``
+or ``NUMBA_NUM_THREADS``); chunks only decide how many blocks are in flight
+at once, and block sums are added in block order, so neither the chunk size
+nor the number of threads changes a single bit of the result.  Plain
+threads rather than numba's parallel loops: numba's OpenMP layer cannot
+survive the ``fork`` of a process pool (the daily control uses one), and
+its work-queue layer aborts when two threads launch kernels at once.  SFC64 is numpy's fastest bit
 generator here (normal draws dominate the cost of a step) and passes the
 same statistical test batteries as the default PCG64.
 """
@@ -18,12 +22,14 @@ from __future__ import annotations
 
 import functools
 import time
+from concurrent.futures import ThreadPoolExecutor
+from contextlib import nullcontext
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from .cir_law import cir_transition
-from .mc_kernels import price_blocks
+from .mc_kernels import price_block
 from .mc_schemes import SCHEMES, kernel_constants
 from .numba_setup import numba
 from .params import HestonParams
@@ -245,18 +251,12 @@ def mc_price(
     sums = np.zeros((n_blocks, strikes.size))
     squares = np.zeros((n_blocks, strikes.size))
     counts = np.zeros((n_blocks, 4), dtype=np.int64)  # values, touched, negatives, failed
-    for first in range(0, n_blocks, per_chunk):
-        ids = slice(first, min(first + per_chunk, n_blocks))
-        # block j's stream is root.spawn(n_blocks)[j], made only when its chunk runs
-        gens = numba.typed.List(
-            [
-                np.random.Generator(np.random.SFC64(_child(root, j)))
-                for j in range(ids.start, ids.stop)
-            ]
-        )
-        sums[ids], squares[ids], counts[ids] = price_blocks(
-            gens,
-            np.array(sizes[ids], dtype=np.int64),
+
+    def run_block(j):
+        gen = np.random.Generator(np.random.SFC64(_child(root, j)))
+        return price_block(
+            gen,
+            sizes[j],
             antithetic,
             info.kind,
             fmap,
@@ -268,6 +268,15 @@ def mc_price(
             strikes,
             conditional,
         )
+
+    threads = min(numba.get_num_threads(), n_blocks)
+    with ThreadPoolExecutor(threads) if threads > 1 else nullcontext() as pool:
+        for first in range(0, n_blocks, per_chunk):
+            ids = range(first, min(first + per_chunk, n_blocks))
+            # block j's stream is root.spawn(n_blocks)[j], made only when its chunk runs
+            results = pool.map(run_block, ids) if pool else map(run_block, ids)
+            for j, (s, sq, cnt) in zip(ids, results, strict=True):
+                sums[j], squares[j], counts[j] = s, sq, cnt
     touched_paths, negatives, adj_failed = (int(x) for x in counts[:, 1:].sum(axis=0))
     counts = counts[:, 0]
 
