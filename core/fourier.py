@@ -21,6 +21,8 @@ Two independent methods:
 
 from __future__ import annotations
 
+import threading
+from collections import OrderedDict
 from dataclasses import dataclass
 
 import numpy as np
@@ -132,6 +134,10 @@ class _CosSeries:
     payoff_coef: np.ndarray  # columns: coef / omega and coef (1 - i omega) / (1 + omega^2)
     chi_edge: float  # sum of Re of the second column, the chi term at the lower end
 
+    @property
+    def nbytes(self):
+        return self.omega.nbytes + self.coef.nbytes + self.payoff_coef.nbytes
+
     @classmethod
     def from_cf(cls, a, b, cf, step=1):
         """Series from ``cf[::step]``, the characteristic function at
@@ -169,6 +175,70 @@ class _CosSeries:
         psi_sum = self.coef[0] * (cut - a) + sums[:, 0].imag
         chi_sum = np.exp(cut) * sums[:, 1].real - np.exp(a) * self.chi_edge
         return 2.0 / (b - a) * strike * (psi_sum - np.exp(log_moneyness) * chi_sum)
+
+
+def _series_pair(params, maturity, drift, c1, sd, left, right, n):
+    """The series on ``[c1 - left sd, c1 + right sd]`` (``n`` terms) and on its double (``2 n``)."""
+    wide_a, wide_b = c1 - 2.0 * left * sd, c1 + 2.0 * right * sd
+    omega = np.arange(2 * n) * (np.pi / (wide_b - wide_a))
+    cf = _cf_values(omega, params, maturity, drift)
+    wide = _CosSeries.from_cf(wide_a, wide_b, cf)
+    return _CosSeries.from_cf(c1 - left * sd, c1 + right * sd, cf, step=2), wide
+
+
+def _series(params, maturity, drift, a, b, n):
+    """The series on ``[a, b]`` with ``n`` terms."""
+    return _CosSeries.from_cf(
+        a, b, _cf_values(np.arange(n) * (np.pi / (b - a)), params, maturity, drift)
+    )
+
+
+class _SeriesCache:
+    """Bounded memo of COS series, least recently used evicted first.
+
+    It only ever stores what a pure function returned for the key (model,
+    maturity, drift ``rate - div_yield``, range, terms), so prices cannot
+    depend on what is cached: a column of cells pricing one model and
+    maturity at different strikes builds the series once, and the range
+    checks, which depend on the strikes, still run on every call.
+    """
+
+    def __init__(self, max_bytes):
+        self.max_bytes = max_bytes
+        self._items = OrderedDict()
+        self._lock = threading.Lock()
+        self.nbytes = 0
+
+    def __len__(self):
+        return len(self._items)
+
+    def clear(self):
+        with self._lock:
+            self._items.clear()
+            self.nbytes = 0
+
+    def get(self, key, make, *args):
+        """``make(*args)``, from the cache when ``key`` is in it."""
+        with self._lock:
+            if key in self._items:
+                self._items.move_to_end(key)
+                return self._items[key][0]
+        value = make(*args)
+        size = sum(s.nbytes for s in (value if isinstance(value, tuple) else (value,)))
+        with self._lock:
+            if key not in self._items and size <= self.max_bytes:
+                self._items[key] = (value, size)
+                self.nbytes += size
+                while self.nbytes > self.max_bytes:
+                    _, (_, dropped) = self._items.popitem(last=False)
+                    self.nbytes -= dropped
+        return value
+
+
+#: Most bytes of COS series kept between calls (about 60 maturities of the
+#: hardest demo model; one series of 2^19 terms is 25 MB).
+SERIES_CACHE_BYTES = 64 << 20
+_SERIES = _SeriesCache(SERIES_CACHE_BYTES)
 
 
 def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, start=(12.0, 12.0)):
@@ -213,11 +283,8 @@ def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, st
         n = terms(left, right)
         if 2 * n > MAX_TERMS:
             return None
-        wide_a, wide_b = c1 - 2.0 * left * sd, c1 + 2.0 * right * sd
-        omega = np.arange(2 * n) * (np.pi / (wide_b - wide_a))
-        cf = _cf_values(omega, params, maturity, drift)
-        wide = _CosSeries.from_cf(wide_a, wide_b, cf)
-        return _CosSeries.from_cf(c1 - left * sd, c1 + right * sd, cf, step=2), wide
+        key = (params, float(maturity), float(drift), float(c1), float(sd), left, right, n)
+        return _SERIES.get(key, _series_pair, params, maturity, drift, c1, sd, left, right, n)
 
     def outside_error(wide, a, b):
         """Bounds on the error of the strikes with kinks left of a and right of b."""
@@ -246,8 +313,9 @@ def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, st
         if n > MAX_TERMS:
             break
         a, b = c1 - 1.5 * left * sd, c1 + right * sd
-        cf = _cf_values(np.arange(n) * (np.pi / (b - a)), params, maturity, drift)
-        wider = _CosSeries.from_cf(a, b, cf).puts(x[probe], strike[probe])
+        key = (params, float(maturity), float(drift), float(a), float(b), n)
+        series = _SERIES.get(key, _series, params, maturity, drift, a, b, n)
+        wider = series.puts(x[probe], strike[probe])
         if np.max(np.abs(wider - base_probe)) > tol:
             left = 1.5 * left
         else:
