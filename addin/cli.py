@@ -1,4 +1,4 @@
-"""The ``rootvar`` command line: ``rootvar demo`` and ``rootvar report``."""
+"""The ``rootvar`` command line: ``rootvar demo``, ``rootvar report``, ``rootvar compile``."""
 
 from __future__ import annotations
 
@@ -134,6 +134,18 @@ def _cmd_compute(args) -> int:
     return 3 if report.error_cells else 0
 
 
+def _cmd_compile(args) -> int:
+    from rootvar.core import compile_kernels, kernels_cached
+
+    if kernels_cached():
+        print("rootvar compile: kernels already compiled for this machine; loading them")
+    else:
+        print("rootvar compile: compiling the numerical kernels once (up to about a minute)")
+    seconds = compile_kernels()
+    print(f"rootvar compile: ready in {seconds:.1f} s")
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="rootvar", description=__doc__)
     parser.add_argument("--version", action="version", version=f"rootvar {__version__}")
@@ -213,6 +225,11 @@ def build_parser() -> argparse.ArgumentParser:
     )
     ref.add_argument("--quiet", action="store_true", help="no progress, no summary (schedulers)")
     ref.set_defaults(func=_cmd_refresh)
+
+    comp = sub.add_parser(
+        "compile", help="compile the numerical kernels ahead of time (once per machine)"
+    )
+    comp.set_defaults(func=_cmd_compile)
     return parser
 
 

@@ -8,6 +8,7 @@ from importlib.metadata import PackageNotFoundError, version
 
 from .black_scholes import bs_price, implied_vol, implied_vol_reason
 from .cir_law import TINY_VARIANCE, cir_stationary, cir_transition, cir_transition_shapes
+from .compiled import CompileNotice, compile_kernels, kernels_cached
 from .fourier import FourierDetails, heston_implied_vol, heston_price, heston_price_details
 from .fourier_check import FourierCheckError, lewis_call_price
 from .mc_schemes import SCHEMES
@@ -42,6 +43,7 @@ __all__ = [
     "TINY_VARIANCE",
     "UNDECIDED",
     "Comparison",
+    "CompileNotice",
     "FourierCheckError",
     "FourierDetails",
     "HestonParams",
@@ -53,6 +55,7 @@ __all__ = [
     "cir_transition",
     "cir_transition_shapes",
     "compare_mc_fourier",
+    "compile_kernels",
     "euler_max_step",
     "euler_negative_probability",
     "expected_negative_step_fraction",
@@ -62,6 +65,7 @@ __all__ = [
     "heston_price_details",
     "implied_vol",
     "implied_vol_reason",
+    "kernels_cached",
     "lewis_call_price",
     "mc_price",
     "regime_label",

@@ -28,6 +28,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .black_scholes import implied_vol_reason
+from .compiled import notice_if_cold
 from .cos_kernels import cf_array, fourier_sums
 from .fourier_check import lewis_call_price
 from .heston_cf import heston_log_cf, log_return_cumulants
@@ -361,6 +362,7 @@ def heston_price_details(
     spot, strike, maturity, rate, div_yield = _validated(
         params, spot, strike, maturity, rate, div_yield, kind, method
     )
+    notice_if_cold()
     drift = rate - div_yield
     shape = strike.shape
     k_flat, t_flat = strike.ravel(), maturity.ravel()

@@ -29,6 +29,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .cir_law import cir_transition
+from .compiled import notice_if_cold
 from .mc_kernels import price_block
 from .mc_schemes import SCHEMES, kernel_constants
 from .numba_setup import numba
@@ -234,6 +235,8 @@ def mc_price(
     if antithetic and paths % 2:
         raise InputError(f"paths must be even with antithetic=True, got {paths}")
 
+    strikes = np.ascontiguousarray(strikes)  # one compiled signature
+    notice_if_cold()
     started = time.perf_counter()
     p, info = params, SCHEMES[scheme]
     dt = maturity / steps
