@@ -7,7 +7,7 @@ import sys
 
 from .timing import machine_line
 
-ALL = ["variance", "fourier", "monte_carlo", "refresh"]
+ALL = ["variance", "fourier", "monte_carlo", "refresh", "kernels"]
 
 
 def main(argv: list[str]) -> int:
