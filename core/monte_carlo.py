@@ -21,9 +21,10 @@ same statistical test batteries as the default PCG64.
 from __future__ import annotations
 
 import functools
+import os
+import threading
 import time
 from concurrent.futures import ThreadPoolExecutor
-from contextlib import nullcontext
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -73,6 +74,23 @@ class MCResult:
     expected_negative_step_fraction: float
     martingale_correction_failures: int = 0
     notes: tuple = field(default_factory=tuple)
+
+
+_POOLS: dict = {}
+_POOLS_LOCK = threading.Lock()
+
+
+def _pool(threads):
+    """A thread pool of this size for this process, kept between calls.
+
+    Keyed by process id too: a pool inherited through ``fork`` has no
+    threads behind it, so a forked worker makes its own.
+    """
+    key = (os.getpid(), threads)
+    with _POOLS_LOCK:
+        if key not in _POOLS:
+            _POOLS[key] = ThreadPoolExecutor(threads, thread_name_prefix="rootvar-mc")
+        return _POOLS[key]
 
 
 def _child(root, j):
@@ -273,13 +291,13 @@ def mc_price(
         )
 
     threads = min(numba.get_num_threads(), n_blocks)
-    with ThreadPoolExecutor(threads) if threads > 1 else nullcontext() as pool:
-        for first in range(0, n_blocks, per_chunk):
-            ids = range(first, min(first + per_chunk, n_blocks))
-            # block j's stream is root.spawn(n_blocks)[j], made only when its chunk runs
-            results = pool.map(run_block, ids) if pool else map(run_block, ids)
-            for j, (s, sq, cnt) in zip(ids, results, strict=True):
-                sums[j], squares[j], counts[j] = s, sq, cnt
+    pool = _pool(threads) if threads > 1 else None
+    for first in range(0, n_blocks, per_chunk):
+        ids = range(first, min(first + per_chunk, n_blocks))
+        # block j's stream is root.spawn(n_blocks)[j], made only when its chunk runs
+        results = pool.map(run_block, ids) if pool else map(run_block, ids)
+        for j, (s, sq, cnt) in zip(ids, results, strict=True):
+            sums[j], squares[j], counts[j] = s, sq, cnt
     touched_paths, negatives, adj_failed = (int(x) for x in counts[:, 1:].sum(axis=0))
     counts = counts[:, 0]
 
