@@ -179,12 +179,15 @@ class _CosSeries:
 
 
 def _series_pair(params, maturity, drift, c1, sd, left, right, n):
-    """The series on ``[c1 - left sd, c1 + right sd]`` (``n`` terms) and on its double (``2 n``)."""
+    """The series on ``[c1 - left sd, c1 + right sd]`` (``n`` terms), on its double (``2 n``),
+    and the double's cdf at the range's ends."""
     wide_a, wide_b = c1 - 2.0 * left * sd, c1 + 2.0 * right * sd
     omega = np.arange(2 * n) * (np.pi / (wide_b - wide_a))
     cf = _cf_values(omega, params, maturity, drift)
     wide = _CosSeries.from_cf(wide_a, wide_b, cf)
-    return _CosSeries.from_cf(c1 - left * sd, c1 + right * sd, cf, step=2), wide
+    base = _CosSeries.from_cf(c1 - left * sd, c1 + right * sd, cf, step=2)
+    # the doubled range's cdf at the range's ends (the tail masses; no strike in them)
+    return base, wide, wide.cdf(np.array([base.a, base.b]))
 
 
 def _series(params, maturity, drift, a, b, n):
@@ -225,7 +228,7 @@ class _SeriesCache:
                 self._items.move_to_end(key)
                 return self._items[key][0]
         value = make(*args)
-        size = sum(s.nbytes for s in (value if isinstance(value, tuple) else (value,)))
+        size = sum(part.nbytes for part in (value if isinstance(value, tuple) else (value,)))
         with self._lock:
             if key not in self._items and size <= self.max_bytes:
                 self._items[key] = (value, size)
@@ -287,9 +290,9 @@ def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, st
         key = (params, float(maturity), float(drift), float(c1), float(sd), left, right, n)
         return _SERIES.get(key, _series_pair, params, maturity, drift, c1, sd, left, right, n)
 
-    def outside_error(wide, a, b):
+    def outside_error(ends, a, b):
         """Bounds on the error of the strikes with kinks left of a and right of b."""
-        below, up_to = wide.cdf(np.array([a, b]))
+        below, up_to = ends
         k_left = strike[kink < a].max(initial=0.0)
         k_right = strike[kink > b].max(initial=0.0)
         return k_left * abs(below), 2.0 * k_right * abs(1.0 - up_to)
@@ -299,8 +302,8 @@ def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, st
         series = pair(left, right)
         if series is None:
             break
-        base, wide = series
-        err_left, err_right = outside_error(wide, base.a, base.b)
+        base, wide, ends = series
+        err_left, err_right = outside_error(ends, base.a, base.b)
         if err_left > tol or err_right > tol:
             left *= 1.5 if err_left > tol else 1.0
             right *= 1.5 if err_right > tol else 1.0
