@@ -1,4 +1,4 @@
-"""rootvar.core: pure numpy/scipy numerics for Heston variance checks and pricing.
+"""rootvar.core: numpy/scipy numerics (numba kernels for the hot loops) for Heston checks.
 
 This package never imports the spreadsheet layer (``rootvar.addin``),
 xlwings or openpyxl.
