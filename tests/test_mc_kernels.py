@@ -73,9 +73,17 @@ def test_prices_match_the_reference_engine(scheme, conditional):
     np.testing.assert_allclose(r.std_error, se, rtol=1e-9)
 
 
+@pytest.mark.parametrize("conditional, antithetic", [(True, False), (False, True)])
 @pytest.mark.parametrize("scheme", sorted(SCHEMES))
-def test_bit_identical_for_one_and_two_threads_and_two_chunk_sizes(scheme):
-    args = dict(scheme=scheme, steps=5, paths=5 * BLOCK + 678, seed=99, conditional=True)
+def test_bit_identical_for_one_and_two_threads_and_two_chunk_sizes(scheme, conditional, antithetic):
+    args = dict(
+        scheme=scheme,
+        steps=5,
+        paths=5 * BLOCK + 678,
+        seed=99,
+        conditional=conditional,
+        antithetic=antithetic,
+    )
     strikes = [90.0, 100.0, 120.0]
     threads = numba.get_num_threads()
     try:
