@@ -10,12 +10,21 @@ steps) pays it ahead of time.
 from __future__ import annotations
 
 import os
+import threading
 import time
 import warnings
+from concurrent.futures import ThreadPoolExecutor
 
 from . import cos_kernels, mc_kernels
+from .numba_setup import numba
 
-__all__ = ["CompileNotice", "compile_kernels", "kernels_cached", "notice_if_cold"]
+__all__ = [
+    "CompileNotice",
+    "compile_kernels",
+    "kernels_cached",
+    "notice_if_cold",
+    "thread_pool",
+]
 
 #: Every kernel called from Python, with the signatures the library uses.
 KERNELS = (
@@ -85,3 +94,25 @@ def compile_kernels() -> float:
             )
     heston_price(p, 100.0, [90.0, 110.0], 1.0)
     return time.perf_counter() - start
+
+
+_POOLS: dict = {}
+_POOLS_LOCK = threading.Lock()
+
+
+def thread_pool():
+    """A pool of ``numba.get_num_threads()`` threads for this process, or None for one thread.
+
+    The kernels release the GIL, so independent pieces of work (Monte Carlo
+    blocks, slices of frequencies or strikes) run side by side on it.  Kept
+    between calls; keyed by process id too, because a pool inherited through
+    ``fork`` has no threads behind it, so a forked worker makes its own.
+    """
+    threads = numba.get_num_threads()
+    if threads < 2:
+        return None
+    key = (os.getpid(), threads)
+    with _POOLS_LOCK:
+        if key not in _POOLS:
+            _POOLS[key] = ThreadPoolExecutor(threads, thread_name_prefix="rootvar")
+        return _POOLS[key]

@@ -65,7 +65,7 @@ def _log_cf(u, t, kappa, theta, sigma, rho, v0, drift):
     return 1j * u * drift * t + c + v0 * dpart
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def log_cf_array(u, t, model, drift):
     """The log characteristic function at each ``(u[i], t[i])``; ``model`` is
     ``(kappa, theta, vol_of_vol, rho, v0)``."""
@@ -76,7 +76,7 @@ def log_cf_array(u, t, model, drift):
     return out
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def cf_array(omega, t, model, drift):
     """The characteristic function at real ``omega``, one maturity ``t``."""
     out = np.empty(omega.size, dtype=np.complex128)

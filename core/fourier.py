@@ -21,6 +21,7 @@ Two independent methods:
 
 from __future__ import annotations
 
+import itertools
 import threading
 from collections import OrderedDict
 from dataclasses import dataclass
@@ -28,10 +29,11 @@ from dataclasses import dataclass
 import numpy as np
 
 from .black_scholes import implied_vol_reason
-from .compiled import notice_if_cold
+from .compiled import notice_if_cold, thread_pool
 from .cos_kernels import cf_array, fourier_sums
 from .fourier_check import lewis_call_price
 from .heston_cf import heston_log_cf, log_return_cumulants
+from .numba_setup import numba
 from .params import HestonParams
 from .validation import InputError, as_float_array, broadcast, check_choice, scalar_or_array
 
@@ -96,11 +98,32 @@ def _cf_cutoffs(params, maturities, drift, max_strike, spot):
     return u[np.clip(last + 1, 0, u.size - 1)]
 
 
+#: Least work (frequencies x columns, or values) worth splitting over threads.
+SPLIT_WORK = 1 << 12
+
+
+def _split(count, work):
+    """Slices of ``range(count)``, one per thread when ``work`` is worth it, and the pool."""
+    pool = thread_pool() if work >= SPLIT_WORK and count > 1 else None
+    if pool is None:
+        return [slice(0, count)], None
+    edges = np.linspace(0, count, min(numba.get_num_threads(), count) + 1).astype(int)
+    return [slice(a, b) for a, b in itertools.pairwise(edges)], pool
+
+
 def _cf_values(omega, params, maturity, drift):
-    """The characteristic function at real ``omega`` (compiled, no temporaries)."""
+    """The characteristic function at real ``omega`` (compiled, no temporaries).
+
+    Every value is computed alone, so slicing the frequencies over threads
+    changes no bit.
+    """
     p = params
     model = np.array([p.kappa, p.theta, p.vol_of_vol, p.rho, p.v0])
-    return cf_array(omega, float(maturity), model, float(drift))
+    t, mu = float(maturity), float(drift)
+    parts, pool = _split(omega.size, omega.size)
+    if pool is None:
+        return cf_array(omega, t, model, mu)
+    return np.concatenate(list(pool.map(lambda s: cf_array(omega[s], t, model, mu), parts)))
 
 
 def _fourier_sums(angle, coef):
@@ -108,11 +131,15 @@ def _fourier_sums(angle, coef):
 
     Splits ``k = l J + j`` (``J ~ sqrt(N)``) so that only ``2 M`` complex
     exponentials are taken instead of ``M N``; see
-    :func:`rootvar.core.cos_kernels.fourier_sums`.
+    :func:`rootvar.core.cos_kernels.fourier_sums`.  Each angle's sum is
+    independent of the others, so slicing the angles over threads changes no bit.
     """
-    return fourier_sums(
-        np.ascontiguousarray(angle, dtype=float), np.ascontiguousarray(coef, dtype=complex)
-    )
+    angle = np.ascontiguousarray(angle, dtype=float)
+    coef = np.ascontiguousarray(coef, dtype=complex)
+    parts, pool = _split(angle.size, angle.size * coef.size)
+    if pool is None:
+        return fourier_sums(angle, coef)
+    return np.concatenate(list(pool.map(lambda s: fourier_sums(angle[s], coef), parts)))
 
 
 def _phases(step, count):

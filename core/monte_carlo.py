@@ -21,19 +21,15 @@ same statistical test batteries as the default PCG64.
 from __future__ import annotations
 
 import functools
-import os
-import threading
 import time
-from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from .cir_law import cir_transition
-from .compiled import notice_if_cold
+from .compiled import notice_if_cold, thread_pool
 from .mc_kernels import price_block
 from .mc_schemes import SCHEMES, kernel_constants
-from .numba_setup import numba
 from .params import HestonParams
 from .validation import InputError, as_float_array, as_positive_int, check_choice
 from .variance import euler_negative_probability
@@ -74,23 +70,6 @@ class MCResult:
     expected_negative_step_fraction: float
     martingale_correction_failures: int = 0
     notes: tuple = field(default_factory=tuple)
-
-
-_POOLS: dict = {}
-_POOLS_LOCK = threading.Lock()
-
-
-def _pool(threads):
-    """A thread pool of this size for this process, kept between calls.
-
-    Keyed by process id too: a pool inherited through ``fork`` has no
-    threads behind it, so a forked worker makes its own.
-    """
-    key = (os.getpid(), threads)
-    with _POOLS_LOCK:
-        if key not in _POOLS:
-            _POOLS[key] = ThreadPoolExecutor(threads, thread_name_prefix="rootvar-mc")
-        return _POOLS[key]
 
 
 def _child(root, j):
@@ -290,8 +269,7 @@ def mc_price(
             conditional,
         )
 
-    threads = min(numba.get_num_threads(), n_blocks)
-    pool = _pool(threads) if threads > 1 else None
+    pool = thread_pool() if n_blocks > 1 else None
     for first in range(0, n_blocks, per_chunk):
         ids = range(first, min(first + per_chunk, n_blocks))
         # block j's stream is root.spawn(n_blocks)[j], made only when its chunk runs

@@ -108,3 +108,24 @@ def test_cache_entries_larger_than_the_cache_are_not_kept():
     value = cache.get("key", fourier._series, FO, 1.0, 0.0, -1.0, 1.0, 64)
     assert len(cache) == 0 and cache.nbytes == 0
     np.testing.assert_array_equal(value.coef, fourier._series(FO, 1.0, 0.0, -1.0, 1.0, 64).coef)
+
+
+def test_prices_are_bit_identical_for_one_and_two_threads():
+    # Frequencies and strikes are sliced over threads when the work is large;
+    # every value is computed alone, so the split must not change a bit.
+    from rootvar.core.numba_setup import numba
+
+    strikes = np.linspace(40.0, 250.0, 60)
+    maturities = np.array([0.1, 1.0, 10.0])[:, None]
+    threads = numba.get_num_threads()
+    try:
+        numba.set_num_threads(1)
+        fourier._SERIES.clear()
+        one = heston_price_details(ANDERSEN_I, 100, strikes, maturities, 0.02, 0.01)
+        numba.set_num_threads(min(2, numba.config.NUMBA_NUM_THREADS))
+        fourier._SERIES.clear()
+        two = heston_price_details(ANDERSEN_I, 100, strikes, maturities, 0.02, 0.01)
+    finally:
+        numba.set_num_threads(threads)
+    np.testing.assert_array_equal(one.price, two.price)
+    assert one.terms == two.terms
