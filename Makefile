@@ -14,6 +14,7 @@ $(STAMP): pyproject.toml
 	touch $(STAMP)
 
 demo: $(STAMP)
+	$(BIN)/rootvar compile
 	$(BIN)/rootvar demo
 
 lint: $(STAMP)

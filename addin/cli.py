@@ -1,4 +1,4 @@
-"""The ``rootvar`` command line: ``rootvar demo`` and ``rootvar report``."""
+"""The ``rootvar`` command line: ``rootvar demo``, ``rootvar report``, ``rootvar compile``."""
 
 from __future__ import annotations
 
@@ -201,6 +201,18 @@ def _cmd_calibrate(args) -> int:
     return run_calibrate(args)
 
 
+def _cmd_compile(args) -> int:
+    from rootvar.core import compile_kernels, kernels_cached
+
+    if kernels_cached():
+        print("rootvar compile: kernels already compiled for this machine; loading them")
+    else:
+        print("rootvar compile: compiling the numerical kernels once (up to about a minute)")
+    seconds = compile_kernels()
+    print(f"rootvar compile: ready in {seconds:.1f} s")
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="rootvar", description=__doc__)
     parser.add_argument("--version", action="version", version=f"rootvar {__version__}")
@@ -311,6 +323,10 @@ def build_parser() -> argparse.ArgumentParser:
     from .calibrate_command import add_calibrate_parser
 
     add_calibrate_parser(sub, _cmd_calibrate)
+    comp = sub.add_parser(
+        "compile", help="compile the numerical kernels ahead of time (once per machine)"
+    )
+    comp.set_defaults(func=_cmd_compile)
     return parser
 
 

@@ -7,7 +7,7 @@ import sys
 
 from .timing import machine_line
 
-ALL = ["variance", "fourier", "monte_carlo", "refresh", "pde", "calibration"]
+ALL = ["variance", "fourier", "monte_carlo", "kernels", "refresh", "pde", "calibration"]
 
 
 def main(argv: list[str]) -> int:

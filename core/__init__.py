@@ -1,4 +1,4 @@
-"""rootvar.core: pure numpy/scipy numerics for Heston variance checks and pricing.
+"""rootvar.core: numpy/scipy numerics (numba kernels for the hot loops) for Heston checks.
 
 This package never imports the spreadsheet layer (``rootvar.addin``),
 xlwings or openpyxl.
@@ -9,6 +9,7 @@ from importlib.metadata import PackageNotFoundError, version
 from .black_scholes import bs_price, implied_vol, implied_vol_reason
 from .calibration import Calibration, calibrate, calibration_tradeoff
 from .cir_law import TINY_VARIANCE, cir_stationary, cir_transition, cir_transition_shapes
+from .compiled import CompileNotice, compile_kernels, kernels_cached
 from .fourier import FourierDetails, heston_implied_vol, heston_price, heston_price_details
 from .fourier_check import FourierCheckError, lewis_call_price
 from .heston_gradient import heston_price_gradient
@@ -49,6 +50,7 @@ __all__ = [
     "BarrierOption",
     "Calibration",
     "Comparison",
+    "CompileNotice",
     "EuropeanOption",
     "FourierCheckError",
     "FourierDetails",
@@ -66,6 +68,7 @@ __all__ = [
     "cir_transition",
     "cir_transition_shapes",
     "compare_mc_fourier",
+    "compile_kernels",
     "euler_max_step",
     "euler_negative_probability",
     "expected_negative_step_fraction",
@@ -76,6 +79,7 @@ __all__ = [
     "heston_price_gradient",
     "implied_vol",
     "implied_vol_reason",
+    "kernels_cached",
     "lewis_call_price",
     "mc_price",
     "pde_price",

@@ -21,13 +21,19 @@ Two independent methods:
 
 from __future__ import annotations
 
+import itertools
+import threading
+from collections import OrderedDict
 from dataclasses import dataclass
 
 import numpy as np
 
 from .black_scholes import implied_vol_reason
+from .compiled import notice_if_cold, thread_pool
+from .cos_kernels import cf_array, fourier_sums
 from .fourier_check import lewis_call_price
 from .heston_cf import heston_log_cf, log_return_cumulants
+from .numba_setup import numba
 from .params import HestonParams
 from .validation import InputError, as_float_array, broadcast, check_choice, scalar_or_array
 
@@ -44,8 +50,6 @@ RANGE_TOL = 1e-10
 PRICE_FLOOR = 1e-9
 #: Most COS terms per maturity before the check method takes over.
 MAX_TERMS = 1 << 19
-#: Frequencies per characteristic-function call: bounds the temporaries.
-CF_CHUNK = 1 << 13
 
 
 @dataclass(frozen=True)
@@ -94,49 +98,48 @@ def _cf_cutoffs(params, maturities, drift, max_strike, spot):
     return u[np.clip(last + 1, 0, u.size - 1)]
 
 
+#: Least work (frequencies x columns, or values) worth splitting over threads.
+SPLIT_WORK = 1 << 12
+
+
+def _split(count, work):
+    """Slices of ``range(count)``, one per thread when ``work`` is worth it, and the pool."""
+    pool = thread_pool() if work >= SPLIT_WORK and count > 1 else None
+    if pool is None:
+        return [slice(0, count)], None
+    edges = np.linspace(0, count, min(numba.get_num_threads(), count) + 1).astype(int)
+    return [slice(a, b) for a, b in itertools.pairwise(edges)], pool
+
+
 def _cf_values(omega, params, maturity, drift):
-    """The characteristic function at real ``omega``, in chunks of :data:`CF_CHUNK`.
+    """The characteristic function at real ``omega`` (compiled, no temporaries).
 
-    Hard corners (a day, vol_of_vol 2, rho near +-1) need some 10^5 terms;
-    chunks keep the twenty-odd temporaries of the formula small.
+    Every value is computed alone, so slicing the frequencies over threads
+    changes no bit.
     """
-    out = np.empty(omega.size, dtype=complex)
-    for i in range(0, omega.size, CF_CHUNK):
-        part = slice(i, i + CF_CHUNK)
-        out[part] = np.exp(heston_log_cf(omega[part], params, maturity, drift))
-    return out
-
-
-def _powers(base, count):
-    """``base[:, None] ** arange(count)`` by running products.
-
-    The ``j``-th power carries about ``j`` roundings, so callers keep
-    ``count`` near ``sqrt(N)`` (relative error about 1e-13 at N = 2^19).
-    """
-    out = np.empty((base.size, count), dtype=complex)
-    out[:, 0] = 1.0
-    out[:, 1:] = base[:, None]
-    np.cumprod(out[:, 1:], axis=1, out=out[:, 1:])
-    return out
+    p = params
+    model = np.array([p.kappa, p.theta, p.vol_of_vol, p.rho, p.v0])
+    t, mu = float(maturity), float(drift)
+    parts, pool = _split(omega.size, omega.size)
+    if pool is None:
+        return cf_array(omega, t, model, mu)
+    return np.concatenate(list(pool.map(lambda s: cf_array(omega[s], t, model, mu), parts)))
 
 
 def _fourier_sums(angle, coef):
     """``sum_k coef[k, p] exp(i k angle[m])`` for every m and column p.
 
-    Splits ``k = l J + j`` (``J ~ sqrt(N)``): the sum over ``l`` for every
-    ``j`` is one matrix product with the coefficients as stored, and the
-    unit waves are running products of ``M (J + N / J)`` numbers, so only
-    ``2 M`` complex exponentials are taken instead of ``M N``.
+    Splits ``k = l J + j`` (``J ~ sqrt(N)``) so that only ``2 M`` complex
+    exponentials are taken instead of ``M N``; see
+    :func:`rootvar.core.cos_kernels.fourier_sums`.  Each angle's sum is
+    independent of the others, so slicing the angles over threads changes no bit.
     """
-    n, cols = coef.shape
-    near_n = max(1, int(np.ceil(np.sqrt(n))))
-    far_n = -(-n // near_n)
-    padded = np.zeros((far_n * near_n, cols), dtype=complex)
-    padded[:n] = coef
-    near = _powers(np.exp(1j * angle), near_n)  # e^{i j angle}
-    far = _powers(np.exp(1j * near_n * angle), far_n)  # e^{i l J angle}
-    partial = (far @ padded.reshape(far_n, near_n * cols)).reshape(angle.size, near_n, cols)
-    return (near[:, None, :] @ partial)[:, 0, :]
+    angle = np.ascontiguousarray(angle, dtype=float)
+    coef = np.ascontiguousarray(coef, dtype=complex)
+    parts, pool = _split(angle.size, angle.size * coef.size)
+    if pool is None:
+        return fourier_sums(angle, coef)
+    return np.concatenate(list(pool.map(lambda s: fourier_sums(angle[s], coef), parts)))
 
 
 def _phases(step, count):
@@ -158,6 +161,10 @@ class _CosSeries:
     coef: np.ndarray
     payoff_coef: np.ndarray  # columns: coef / omega and coef (1 - i omega) / (1 + omega^2)
     chi_edge: float  # sum of Re of the second column, the chi term at the lower end
+
+    @property
+    def nbytes(self):
+        return self.omega.nbytes + self.coef.nbytes + self.payoff_coef.nbytes
 
     @classmethod
     def from_cf(cls, a, b, cf, step=1):
@@ -196,6 +203,73 @@ class _CosSeries:
         psi_sum = self.coef[0] * (cut - a) + sums[:, 0].imag
         chi_sum = np.exp(cut) * sums[:, 1].real - np.exp(a) * self.chi_edge
         return 2.0 / (b - a) * strike * (psi_sum - np.exp(log_moneyness) * chi_sum)
+
+
+def _series_pair(params, maturity, drift, c1, sd, left, right, n):
+    """The series on ``[c1 - left sd, c1 + right sd]`` (``n`` terms), on its double (``2 n``),
+    and the double's cdf at the range's ends."""
+    wide_a, wide_b = c1 - 2.0 * left * sd, c1 + 2.0 * right * sd
+    omega = np.arange(2 * n) * (np.pi / (wide_b - wide_a))
+    cf = _cf_values(omega, params, maturity, drift)
+    wide = _CosSeries.from_cf(wide_a, wide_b, cf)
+    base = _CosSeries.from_cf(c1 - left * sd, c1 + right * sd, cf, step=2)
+    # the doubled range's cdf at the range's ends (the tail masses; no strike in them)
+    return base, wide, wide.cdf(np.array([base.a, base.b]))
+
+
+def _series(params, maturity, drift, a, b, n):
+    """The series on ``[a, b]`` with ``n`` terms."""
+    return _CosSeries.from_cf(
+        a, b, _cf_values(np.arange(n) * (np.pi / (b - a)), params, maturity, drift)
+    )
+
+
+class _SeriesCache:
+    """Bounded memo of COS series, least recently used evicted first.
+
+    It only ever stores what a pure function returned for the key (model,
+    maturity, drift ``rate - div_yield``, range, terms), so prices cannot
+    depend on what is cached: a column of cells pricing one model and
+    maturity at different strikes builds the series once, and the range
+    checks, which depend on the strikes, still run on every call.
+    """
+
+    def __init__(self, max_bytes):
+        self.max_bytes = max_bytes
+        self._items = OrderedDict()
+        self._lock = threading.Lock()
+        self.nbytes = 0
+
+    def __len__(self):
+        return len(self._items)
+
+    def clear(self):
+        with self._lock:
+            self._items.clear()
+            self.nbytes = 0
+
+    def get(self, key, make, *args):
+        """``make(*args)``, from the cache when ``key`` is in it."""
+        with self._lock:
+            if key in self._items:
+                self._items.move_to_end(key)
+                return self._items[key][0]
+        value = make(*args)
+        size = sum(part.nbytes for part in (value if isinstance(value, tuple) else (value,)))
+        with self._lock:
+            if key not in self._items and size <= self.max_bytes:
+                self._items[key] = (value, size)
+                self.nbytes += size
+                while self.nbytes > self.max_bytes:
+                    _, (_, dropped) = self._items.popitem(last=False)
+                    self.nbytes -= dropped
+        return value
+
+
+#: Most bytes of COS series kept between calls (about 60 maturities of the
+#: hardest demo model; one series of 2^19 terms is 25 MB).
+SERIES_CACHE_BYTES = 64 << 20
+_SERIES = _SeriesCache(SERIES_CACHE_BYTES)
 
 
 def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, start=(12.0, 12.0)):
@@ -240,15 +314,12 @@ def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, st
         n = terms(left, right)
         if 2 * n > MAX_TERMS:
             return None
-        wide_a, wide_b = c1 - 2.0 * left * sd, c1 + 2.0 * right * sd
-        omega = np.arange(2 * n) * (np.pi / (wide_b - wide_a))
-        cf = _cf_values(omega, params, maturity, drift)
-        wide = _CosSeries.from_cf(wide_a, wide_b, cf)
-        return _CosSeries.from_cf(c1 - left * sd, c1 + right * sd, cf, step=2), wide
+        key = (params, float(maturity), float(drift), float(c1), float(sd), left, right, n)
+        return _SERIES.get(key, _series_pair, params, maturity, drift, c1, sd, left, right, n)
 
-    def outside_error(wide, a, b):
+    def outside_error(ends, a, b):
         """Bounds on the error of the strikes with kinks left of a and right of b."""
-        below, up_to = wide.cdf(np.array([a, b]))
+        below, up_to = ends
         k_left = strike[kink < a].max(initial=0.0)
         k_right = strike[kink > b].max(initial=0.0)
         return k_left * abs(below), 2.0 * k_right * abs(1.0 - up_to)
@@ -258,8 +329,8 @@ def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, st
         series = pair(left, right)
         if series is None:
             break
-        base, wide = series
-        err_left, err_right = outside_error(wide, base.a, base.b)
+        base, wide, ends = series
+        err_left, err_right = outside_error(ends, base.a, base.b)
         if err_left > tol or err_right > tol:
             left *= 1.5 if err_left > tol else 1.0
             right *= 1.5 if err_right > tol else 1.0
@@ -273,8 +344,9 @@ def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, st
         if n > MAX_TERMS:
             break
         a, b = c1 - 1.5 * left * sd, c1 + right * sd
-        cf = _cf_values(np.arange(n) * (np.pi / (b - a)), params, maturity, drift)
-        wider = _CosSeries.from_cf(a, b, cf).puts(x[probe], strike[probe])
+        key = (params, float(maturity), float(drift), float(a), float(b), n)
+        series = _SERIES.get(key, _series, params, maturity, drift, a, b, n)
+        wider = series.puts(x[probe], strike[probe])
         if np.max(np.abs(wider - base_probe)) > tol:
             left = 1.5 * left
         else:
@@ -320,6 +392,7 @@ def heston_price_details(
     spot, strike, maturity, rate, div_yield = _validated(
         params, spot, strike, maturity, rate, div_yield, kind, method
     )
+    notice_if_cold()
     drift = rate - div_yield
     shape = strike.shape
     k_flat, t_flat = strike.ravel(), maturity.ravel()

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .cos_kernels import log_cf_array
 from .params import HestonParams
 
 __all__ = ["heston_log_cf", "log_return_cumulants"]
@@ -34,7 +35,10 @@ def heston_log_cf(u, params: HestonParams, maturity, drift=0.0):
 
     Written with ``e^{-dT}`` (which never overflows) and ``|g| <= 1``, the
     principal logarithm never crosses its branch cut for real ``u``, unlike
-    Heston's (1993) original form.
+    Heston's (1993) original form.  Evaluated by the compiled kernel
+    :func:`rootvar.core.cos_kernels.log_cf_array`, with the principal square
+    root and logarithm from real operations (numpy's complex log takes a slow
+    extra-precision path near ``|z| = 1``, where this argument lives).
 
     References
     ----------
@@ -42,48 +46,10 @@ def heston_log_cf(u, params: HestonParams, maturity, drift=0.0):
     Heston trap. Wilmott Magazine, January 2007, 83-92.
     """
     p = params
-    u = np.asarray(u, dtype=complex)
-    t = np.asarray(maturity, dtype=float)
-    sig2 = p.vol_of_vol**2
-    xi = p.kappa - p.rho * p.vol_of_vol * 1j * u
-    d = _principal_sqrt(xi * xi + sig2 * (u * u + 1j * u))
-    xi_minus_d = xi - d
-    g = xi_minus_d / (xi + d)
-    # exp(-d T) with its modulus floored at e^-700: it only enters next to 1,
-    # and the floor keeps the exponential off the slow subnormal path
-    e = np.exp(np.maximum(-(d.real * t), -700.0) - 1j * (d.imag * t))
-    one_minus_ge = 1.0 - g * e
-    c = p.kappa * p.theta / sig2 * (xi_minus_d * t - 2.0 * _principal_log(one_minus_ge / (1.0 - g)))
-    dpart = xi_minus_d / sig2 * (1.0 - e) / one_minus_ge
-    return 1j * u * drift * t + c + p.v0 * dpart
-
-
-def _principal_sqrt(z):
-    """Principal square root (``Re >= 0``) from real operations.
-
-    Same branch as ``numpy.sqrt`` on complex input, about three times faster
-    here; the half-sum form has no cancellation for either sign of ``Re z``.
-    Valid for ``1e-150 < |z| < 1e150`` (the squares must not under- or
-    overflow), far wider than the arguments of the characteristic function.
-    """
-    re, im = z.real, z.imag
-    t = np.sqrt(0.5 * (np.abs(re) + np.sqrt(re * re + im * im)))
-    half = np.divide(0.5 * im, t, out=np.zeros_like(t), where=t > 0)
-    right = re >= 0
-    return np.where(right, t, np.abs(half)) + 1j * np.where(right, half, np.copysign(t, im))
-
-
-def _principal_log(z):
-    """Principal logarithm (argument in ``(-pi, pi]``) from real operations.
-
-    ``numpy.log`` on complex input takes a slow extra-precision path near
-    ``|z| = 1``, where this argument lives (measured up to 8 times slower);
-    the real form loses only relative accuracy of ``ln|z|`` near zero, i.e.
-    stays within ~1e-16 absolute, which is what the exponent needs.  Valid
-    for ``1e-150 < |z| < 1e150``, as :func:`_principal_sqrt`.
-    """
-    re, im = z.real, z.imag
-    return 0.5 * np.log(re * re + im * im) + 1j * np.arctan2(im, re)
+    u, t = np.broadcast_arrays(np.asarray(u, dtype=complex), np.asarray(maturity, dtype=float))
+    model = np.array([p.kappa, p.theta, p.vol_of_vol, p.rho, p.v0])
+    flat = log_cf_array(u.ravel(), t.ravel(), model, float(drift))
+    return flat.reshape(u.shape)
 
 
 def log_return_cumulants(params: HestonParams, maturity, drift=0.0):

@@ -5,11 +5,17 @@ paths are cut into fixed blocks of :data:`BLOCK` paths; block ``j`` draws
 every random number it ever uses from its own generator
 ``numpy.random.Generator(SFC64(SeedSequence(seed).spawn(n_blocks)[j]))``, in
 a fixed order (each step's variance draws, the same kinds on every step,
-then the terminal log-price normal).  Chunks only decide how many blocks are
-vectorised together, and block sums are added in block order, so neither
-the chunk size nor the number of workers changes a single bit of the result.  SFC64 is numpy's
-fastest bit generator here (normal draws dominate the cost of a step) and
-passes the same statistical test batteries as the default PCG64.
+then the terminal log-price normal).  Each block runs through every step in
+compiled code (:mod:`rootvar.core.mc_kernels`) that releases the GIL, on
+``numba.get_num_threads()`` threads (set it with ``numba.set_num_threads``
+or ``NUMBA_NUM_THREADS``); chunks only decide how many blocks are in flight
+at once, and block sums are added in block order, so neither the chunk size
+nor the number of threads changes a single bit of the result.  Plain
+threads rather than numba's parallel loops: numba's OpenMP layer cannot
+survive the ``fork`` of a process pool (the daily control uses one), and
+its work-queue layer aborts when two threads launch kernels at once.  SFC64 is numpy's fastest bit
+generator here (normal draws dominate the cost of a step) and passes the
+same statistical test batteries as the default PCG64.
 """
 
 from __future__ import annotations
@@ -19,10 +25,11 @@ import time
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.special import ndtr
 
 from .cir_law import cir_transition
-from .mc_schemes import SCHEMES, Accumulator
+from .compiled import notice_if_cold, thread_pool
+from .mc_kernels import price_block
+from .mc_schemes import SCHEMES, kernel_constants
 from .params import HestonParams
 from .validation import InputError, as_float_array, as_positive_int, check_choice
 from .variance import euler_negative_probability
@@ -33,8 +40,6 @@ __all__ = ["BLOCK", "DEFAULT_SEED", "MCResult", "expected_negative_step_fraction
 BLOCK = 4096
 #: Seed used when none is given.
 DEFAULT_SEED = 20240601
-#: Largest double numpy's ``Generator.random`` returns, 1 - 2^-53.
-_LAST_UNIFORM = 1.0 - 2.0**-53
 #: Two-sided 95% normal quantile for the confidence interval.
 Z95 = 1.959963984540054
 
@@ -67,84 +72,11 @@ class MCResult:
     notes: tuple = field(default_factory=tuple)
 
 
-class _Draws:
-    """Random numbers for a chunk of blocks, each block from its own stream.
-
-    ``normal`` and ``uniform`` fill reused buffers: a caller must be done
-    with one draw before asking for the next of the same kind.
-    """
-
-    def __init__(self, generators, sizes, antithetic):
-        self.gens, self.sizes, self.anti = generators, sizes, antithetic
-        self.n = int(sum(sizes))
-        self._normal = np.empty(self.n)
-        self._uniform = np.empty(self.n)
-
-    def _fill(self, out, draw, mirror):
-        """Each block's draws in place; with antithetic, the second half mirrors the first."""
-        start = 0
-        for gen, size in zip(self.gens, self.sizes, strict=True):
-            if self.anti:
-                half = (size + 1) // 2
-                first = out[start : start + half]
-                draw(gen, first)
-                mirror(first[: size - half], out=out[start + half : start + size])
-            else:
-                draw(gen, out[start : start + size])
-            start += size
-        return out
-
-    def normal(self):
-        return self._fill(self._normal, lambda g, out: g.standard_normal(out=out), np.negative)
-
-    def uniform(self):
-        # numpy's doubles are k 2^-53, k = 0 .. 2^53 - 1; the mirror takes k to
-        # 2^53 - 1 - k exactly, so mirrored draws stay in [0, 1) like the
-        # originals and 1 - U is never 0
-        return self._fill(
-            self._uniform,
-            lambda g, out: g.random(out=out),
-            lambda u, out: np.subtract(_LAST_UNIFORM, u, out=out),
-        )
-
-    def noncentral_chisquare(self, df, nonc):
-        out = np.empty(self.n)
-        start = 0
-        for gen, size in zip(self.gens, self.sizes, strict=True):
-            out[start : start + size] = gen.noncentral_chisquare(df, nonc[start : start + size])
-            start += size
-        return out
-
-
-def _conditional_prices(p, spot, strikes, t, rate, div, kind, int_var, mart, adj):
-    """Black-Scholes given the variance path (Willard 1997; Romano & Touzi 1997)."""
-    rho = p.rho
-    log_fwd = np.log(spot) + (rate - div) * t + adj + rho * mart - 0.5 * rho * rho * int_var
-    total = np.sqrt(np.maximum((1.0 - rho * rho) * int_var, 0.0))[:, None]
-    fwd = np.exp(log_fwd)[:, None]
-    k = strikes[None, :]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        d1 = (log_fwd[:, None] - np.log(k)) / total + 0.5 * total
-    d2 = d1 - total
-    sign = 1.0 if kind == "call" else -1.0
-    value = sign * (fwd * ndtr(sign * d1) - k * ndtr(sign * d2))
-    intrinsic = np.maximum(sign * (fwd - k), 0.0)
-    return np.exp(-rate * t) * np.where(total > 0, value, intrinsic)
-
-
-def _terminal_prices(p, spot, strikes, t, rate, div, kind, int_var, mart, adj, z):
-    rho = p.rho
-    log_s = (
-        np.log(spot)
-        + (rate - div) * t
-        + adj
-        - 0.5 * int_var
-        + rho * mart
-        + np.sqrt(np.maximum((1.0 - rho * rho) * int_var, 0.0)) * z
+def _child(root, j):
+    """``root.spawn(n)[j]`` for any ``n > j``, without making the other children."""
+    return np.random.SeedSequence(
+        root.entropy, spawn_key=(*root.spawn_key, j), pool_size=root.pool_size
     )
-    s_t = np.exp(log_s)[:, None]
-    sign = 1.0 if kind == "call" else -1.0
-    return np.exp(-rate * t) * np.maximum(sign * (s_t - strikes[None, :]), 0.0)
 
 
 def _probability_nodes(nodes: int = 64):
@@ -217,7 +149,7 @@ def mc_price(
     seed: int = DEFAULT_SEED,
     antithetic: bool = False,
     conditional: bool = False,
-    chunk_paths: int = 4 * BLOCK,
+    chunk_paths: int = 16 * BLOCK,
 ) -> MCResult:
     """Monte Carlo price of European calls or puts under Heston.
 
@@ -252,8 +184,8 @@ def mc_price(
         the log-price (Willard 1997): removes the log-price noise, keeps the
         variance-discretisation bias.
     chunk_paths : int
-        Paths vectorised together (a multiple of :data:`BLOCK` is used);
-        bounds memory and never changes the result.
+        Paths handed to the threads in one call (a multiple of
+        :data:`BLOCK` is used); bounds memory and never changes the result.
 
     Returns
     -------
@@ -300,54 +232,52 @@ def mc_price(
     if antithetic and paths % 2:
         raise InputError(f"paths must be even with antithetic=True, got {paths}")
 
+    strikes = np.ascontiguousarray(strikes)  # one compiled signature
+    notice_if_cold()
     started = time.perf_counter()
     p, info = params, SCHEMES[scheme]
     dt = maturity / steps
-    step = info.make(p, dt)
+    consts = kernel_constants(info, p, dt)
+    fmap = np.array(info.fmap, dtype=np.int64)
     n_blocks = -(-paths // BLOCK)
     sizes = [BLOCK] * (n_blocks - 1) + [paths - BLOCK * (n_blocks - 1)]
     if antithetic and sizes[-1] % 2:
         raise InputError("paths must leave an even last block with antithetic=True")
-    children = np.random.SeedSequence(int(seed)).spawn(n_blocks)
+    root = np.random.SeedSequence(int(seed))
     per_chunk = max(1, chunk_paths // BLOCK)
+    sign = 1.0 if kind == "call" else -1.0
+    market = np.array([np.log(spot), (rate - div_yield) * maturity, sign, np.exp(-rate * maturity)])
 
     sums = np.zeros((n_blocks, strikes.size))
     squares = np.zeros((n_blocks, strikes.size))
-    counts = np.zeros(n_blocks, dtype=np.int64)
-    negatives = touched_paths = adj_failed = 0
+    counts = np.zeros((n_blocks, 4), dtype=np.int64)  # values, touched, negatives, failed
+
+    def run_block(j):
+        gen = np.random.Generator(np.random.SFC64(_child(root, j)))
+        return price_block(
+            gen,
+            sizes[j],
+            antithetic,
+            info.kind,
+            fmap,
+            consts,
+            p.v0,
+            steps,
+            market,
+            p.rho,
+            strikes,
+            conditional,
+        )
+
+    pool = thread_pool() if n_blocks > 1 else None
     for first in range(0, n_blocks, per_chunk):
         ids = range(first, min(first + per_chunk, n_blocks))
-        gens = [np.random.Generator(np.random.SFC64(children[j])) for j in ids]
-        block_sizes = [sizes[j] for j in ids]
-        draws = _Draws(gens, block_sizes, antithetic)
-        v = np.full(draws.n, p.v0)
-        acc = Accumulator(draws.n, p.v0)
-        for _ in range(steps):
-            v = step(v, draws, acc)
-        int_var, mart = info.finish(p, dt, steps, acc, v)
-        adj = acc.adj
-        negatives += acc.negative_updates
-        adj_failed += acc.adj_failed
-        touched_paths += int(np.count_nonzero(acc.touched))
-        if conditional:
-            values = _conditional_prices(
-                p, spot, strikes, maturity, rate, div_yield, kind, int_var, mart, adj
-            )
-        else:
-            z = draws.normal()
-            values = _terminal_prices(
-                p, spot, strikes, maturity, rate, div_yield, kind, int_var, mart, adj, z
-            )
-        start = 0
-        for j, size in zip(ids, block_sizes, strict=True):
-            block = values[start : start + size]
-            if antithetic:
-                half = size // 2
-                block = 0.5 * (block[:half] + block[half:])
-            sums[j] = block.sum(axis=0)
-            squares[j] = (block * block).sum(axis=0)
-            counts[j] = block.shape[0]
-            start += size
+        # block j's stream is root.spawn(n_blocks)[j], made only when its chunk runs
+        results = pool.map(run_block, ids) if pool else map(run_block, ids)
+        for j, (s, sq, cnt) in zip(ids, results, strict=True):
+            sums[j], squares[j], counts[j] = s, sq, cnt
+    touched_paths, negatives, adj_failed = (int(x) for x in counts[:, 1:].sum(axis=0))
+    counts = counts[:, 0]
 
     n = int(counts.sum())
     mean = sums.sum(axis=0) / n

@@ -1,0 +1,131 @@
+"""Compiled characteristic function against a plain numpy form; the COS series cache."""
+
+import numpy as np
+import pytest
+from fourier_reference import reference_cf_values, reference_fourier_sums
+
+import rootvar.core.fourier as fourier
+from rootvar.core import HestonParams, heston_price, heston_price_details
+from rootvar.core.heston_cf import heston_log_cf
+
+FO = HestonParams(v0=0.0175, kappa=1.5768, theta=0.0398, vol_of_vol=0.5751, rho=-0.5711)
+ANDERSEN_I = HestonParams(v0=0.04, kappa=0.5, theta=0.04, vol_of_vol=1.0, rho=-0.9)
+
+
+def _plain_log_cf(u, p, t, drift):
+    """Albrecher, Mayer, Schoutens & Tistaert (2007), 'The little Heston trap',
+    with numpy's own complex sqrt and log (principal branches)."""
+    sig2 = p.vol_of_vol**2
+    xi = p.kappa - p.rho * p.vol_of_vol * 1j * u
+    d = np.sqrt(xi * xi + sig2 * (u * u + 1j * u))
+    g = (xi - d) / (xi + d)
+    e = np.exp(-d * t)
+    c = p.kappa * p.theta / sig2 * ((xi - d) * t - 2.0 * np.log((1.0 - g * e) / (1.0 - g)))
+    return 1j * u * drift * t + c + p.v0 * (xi - d) / sig2 * (1.0 - e) / (1.0 - g * e)
+
+
+@pytest.mark.parametrize("p", [FO, ANDERSEN_I, HestonParams(0.09, 1.2, 0.04, 2.0, 0.9)])
+def test_compiled_characteristic_function_matches_the_plain_form(p):
+    # Different elementary functions (real-form sqrt and log), so agreement to
+    # rounding, relative to |log cf| + 1, over frequencies that matter for COS.
+    u = np.concatenate([[0.0, 1e-3], np.geomspace(1e-2, 300.0, 400)])[:, None]
+    t = np.array([1 / 365, 0.25, 1.0, 10.0])[None, :]
+    got = heston_log_cf(u, p, t, 0.02)
+    want = _plain_log_cf(u + 0j, p, t, 0.02)
+    assert got.shape == (u.size, t.size)
+    assert np.max(np.abs(got - want) / (1.0 + np.abs(want))) < 1e-12
+
+
+@pytest.mark.parametrize("t", [1 / 365, 1.0, 10.0])
+def test_compiled_cf_values_match_the_numpy_reference(t):
+    omega = np.arange(6000) * 0.05
+    got = fourier._cf_values(omega, ANDERSEN_I, t, 0.01)
+    want = reference_cf_values(omega, ANDERSEN_I, t, 0.01)
+    assert np.max(np.abs(got - want)) < 1e-13  # |cf| <= 1
+
+
+def test_compiled_fourier_sums_match_the_matrix_product_form():
+    # Same split and running products; the products are added in another
+    # order than the matrix routine's, so agreement to rounding.
+    rng = np.random.default_rng(8)
+    coef = rng.normal(size=(7000, 2)) / np.arange(1, 7001)[:, None] + 0j
+    angle = rng.uniform(0, np.pi, 9)
+    got = fourier._fourier_sums(angle, coef)
+    assert np.max(np.abs(got - reference_fourier_sums(angle, coef))) < 1e-13
+
+
+def test_complex_arguments_are_accepted():
+    # cf(-i) = E[S_T / S_0] = exp(drift T): the martingale identity (common practice, no source).
+    value = heston_log_cf(-1j, FO, 2.0, 0.03)
+    assert value == pytest.approx(0.06, abs=1e-12)
+
+
+def test_cached_series_give_the_same_prices_as_a_cold_call():
+    fourier._SERIES.clear()
+    first = heston_price(ANDERSEN_I, 100, [80.0, 100.0], 10.0, 0.02, 0.01)
+    warm = heston_price(ANDERSEN_I, 100, [95.0, 120.0], 10.0, 0.02, 0.01)  # same model, maturity
+    fourier._SERIES.clear()
+    cold = heston_price(ANDERSEN_I, 100, [95.0, 120.0], 10.0, 0.02, 0.01)
+    np.testing.assert_array_equal(warm, cold)
+    again = heston_price(ANDERSEN_I, 100, [80.0, 100.0], 10.0, 0.02, 0.01)
+    np.testing.assert_array_equal(first, again)
+
+
+def test_a_further_strike_at_a_cached_maturity_evaluates_no_characteristic_function(monkeypatch):
+    fourier._SERIES.clear()
+    heston_price(ANDERSEN_I, 100, 100.0, 1.0)
+    calls = []
+    real = fourier._cf_values
+    monkeypatch.setattr(fourier, "_cf_values", lambda *a: calls.append(a) or real(*a))
+    heston_price(ANDERSEN_I, 100, 101.0, 1.0)
+    assert calls == []
+    heston_price(ANDERSEN_I, 100, 101.0, 1.5)  # a new maturity does
+    assert calls
+
+
+def test_a_full_cache_evicts_instead_of_growing(monkeypatch):
+    maturities = np.linspace(0.5, 5.0, 12)[:, None]
+    strikes = np.array([70.0, 100.0, 140.0])
+    unbounded = fourier._SeriesCache(max_bytes=1 << 40)
+    monkeypatch.setattr(fourier, "_SERIES", unbounded)
+    heston_price_details(ANDERSEN_I, 100, strikes, maturities)
+    assert unbounded.nbytes > 4_000_000  # so a 2 MB cache must evict
+    small = fourier._SeriesCache(max_bytes=2_000_000)
+    monkeypatch.setattr(fourier, "_SERIES", small)
+    details = heston_price_details(ANDERSEN_I, 100, strikes, maturities)
+    assert 0 < small.nbytes <= 2_000_000
+    stored = len(small)
+    heston_price_details(ANDERSEN_I, 100, strikes, maturities + 0.01)
+    assert small.nbytes <= 2_000_000 and len(small) <= stored + 20
+    # what was evicted is rebuilt to the same prices
+    again = heston_price_details(ANDERSEN_I, 100, strikes, maturities)
+    np.testing.assert_array_equal(details.price, again.price)
+    assert again.terms == details.terms
+
+
+def test_cache_entries_larger_than_the_cache_are_not_kept():
+    cache = fourier._SeriesCache(max_bytes=10)
+    value = cache.get("key", fourier._series, FO, 1.0, 0.0, -1.0, 1.0, 64)
+    assert len(cache) == 0 and cache.nbytes == 0
+    np.testing.assert_array_equal(value.coef, fourier._series(FO, 1.0, 0.0, -1.0, 1.0, 64).coef)
+
+
+def test_prices_are_bit_identical_for_one_and_two_threads():
+    # Frequencies and strikes are sliced over threads when the work is large;
+    # every value is computed alone, so the split must not change a bit.
+    from rootvar.core.numba_setup import numba
+
+    strikes = np.linspace(40.0, 250.0, 60)
+    maturities = np.array([0.1, 1.0, 10.0])[:, None]
+    threads = numba.get_num_threads()
+    try:
+        numba.set_num_threads(1)
+        fourier._SERIES.clear()
+        one = heston_price_details(ANDERSEN_I, 100, strikes, maturities, 0.02, 0.01)
+        numba.set_num_threads(min(2, numba.config.NUMBA_NUM_THREADS))
+        fourier._SERIES.clear()
+        two = heston_price_details(ANDERSEN_I, 100, strikes, maturities, 0.02, 0.01)
+    finally:
+        numba.set_num_threads(threads)
+    np.testing.assert_array_equal(one.price, two.price)
+    assert one.terms == two.terms
