@@ -24,6 +24,7 @@ __all__ = [
     "PARAM_ORDER",
     "CellError",
     "error_text",
+    "parameter_name",
     "to_bool",
     "to_choice",
     "to_int",
@@ -189,6 +190,11 @@ def to_text_list(name: str, value, choices, default) -> list[str]:
 
 def _label_key(label: str) -> str:
     return re.sub(r"[\s_\-.]", "", label.lower())
+
+
+def parameter_name(label: str) -> str | None:
+    """The parameter a label means (``"Vol of vol"``, ``"sigma"`` -> ``"vol_of_vol"``), or None."""
+    return _ALIASES.get(_label_key(label))
 
 
 def to_params(name: str, value) -> HestonParams:

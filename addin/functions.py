@@ -18,6 +18,8 @@ serve repeated identical calls from an in-process cache.
 
 from __future__ import annotations
 
+import contextlib
+import contextvars
 import functools
 import math
 import traceback
@@ -58,9 +60,26 @@ from .cells import (
 
 __all__ = ["MAX_PATH_STEPS", "REGISTRY", "SheetFunction"]
 
-#: Most path-steps one cell may ask for; bigger runs belong in an
-#: asynchronous function or the headless engine.
+#: Most path-steps one cell may ask for in a spreadsheet program; bigger runs
+#: belong in an asynchronous function or the headless engine, which has no
+#: cap unless one is asked for (``rootvar compute --max-path-steps``).
 MAX_PATH_STEPS = 50_000_000
+
+# The cap in force for the calls of this thread/context: the spreadsheet's by
+# default, lifted by the headless engine through work_cap(None).
+_CAP: contextvars.ContextVar[int | None] = contextvars.ContextVar("cap", default=MAX_PATH_STEPS)
+
+
+@contextlib.contextmanager
+def work_cap(max_path_steps: int | None):
+    """Run the enclosed calls with another per-cell cap on paths x steps (``None``: no cap)."""
+    token = _CAP.set(max_path_steps)
+    try:
+        yield
+    finally:
+        _CAP.reset(token)
+
+
 KINDS = ("call", "put")
 SCHEME_NAMES = tuple(SCHEMES)
 
@@ -149,9 +168,31 @@ def _header(column: str) -> str:
     }
     if column in fixed:
         return fixed[column]
-    if column.startswith("euler_neg_prob_at_q"):
-        return f"Euler negative-step prob. at {column.removeprefix('euler_neg_prob_at_')}"
     return column.replace("_", " ")
+
+
+def step_words(dt: float) -> str:
+    """A step in years as header words: years and trading days (252 a year)."""
+    return f"step {dt:.4g} y = {trading_days(dt)}"
+
+
+def trading_days(years: float) -> str:
+    """Years as trading days (252 a year, common practice, no source), in words."""
+    days = f"{years * 252:.3g}"
+    return f"{days} trading day" + ("" if days == "1" else "s")
+
+
+def _step_headers(rows: list[list], dt: float) -> list[list]:
+    """State the production step in the header of every column that depends on it."""
+    step = step_words(dt)
+    dependent = {
+        "Euler negative-step prob. at v0": f"Euler negative-step prob. at v0 ({step})",
+        "euler worst case": f"Euler worst-case negative-step prob. ({step})",
+        "euler worst level": f"riskiest variance level v* ({step})",
+        "p at or below worst level": f"P(variance <= v*) ({step})",
+    }
+    rows[0] = [dependent.get(h, h) for h in rows[0]]
+    return rows
 
 
 def _table(frame, index_name=None) -> list[list]:
@@ -192,10 +233,16 @@ def _single_strike(strikes) -> float:
 
 
 def _check_work(paths: int, steps: int, cells: int = 1) -> None:
-    if paths * steps * cells > MAX_PATH_STEPS:
+    cap = _CAP.get()
+    if cap is not None and paths * steps * cells > cap:
+        where = (
+            "a spreadsheet cell; rootvar compute runs it headless without this cap"
+            if cap == MAX_PATH_STEPS
+            else "this run (rootvar compute --max-path-steps)"
+        )
         raise CellError(
-            f"paths x steps = {paths * steps * cells:,} exceeds {MAX_PATH_STEPS:,} for one cell; "
-            "run it asynchronously or headless (rootvar compute)"
+            f"paths x steps = {paths * steps * cells:,} exceeds the cap of {cap:,} "
+            f"path-steps for {where}"
         )
 
 
@@ -275,7 +322,13 @@ def ROOTVAR_VAR_CDF(params, horizon, level):
     near_zero="variance level counted as near zero (empty: 1e-4)",
 )
 def ROOTVAR_VAR_TABLE(params, horizons, probabilities=None, dt=None, near_zero=None):
-    """Exact-law table of the variance: mean, spread, quantiles, mass near zero, Euler risk."""
+    """Exact-law table of the variance: mean, spread, quantiles, mass near zero, Euler risk.
+
+    The Euler columns are the one-step negative probability at v0, the worst
+    case of that probability over every variance level, the level v* where
+    it sits, and the exact-law probability of being at or below v*; each
+    header states the step.
+    """
     from rootvar.core import DEFAULT_QUANTILES
 
     p = to_params("params", params)
@@ -285,14 +338,10 @@ def ROOTVAR_VAR_TABLE(params, horizons, probabilities=None, dt=None, near_zero=N
         if probabilities is None
         else to_numbers("probabilities", probabilities, "(0,1)")
     )
-    table = variance_report(
-        p,
-        hs,
-        qs,
-        to_number("dt", dt, ">0", default=1 / 252),
-        to_number("near_zero", near_zero, ">0", default=1e-4),
-    )
-    return _table(table.drop(columns=["feller_ratio", "regime"]), index_name="horizon_years")
+    step = to_number("dt", dt, ">0", default=1 / 252)
+    table = variance_report(p, hs, qs, step, to_number("near_zero", near_zero, ">0", default=1e-4))
+    rows = _table(table.drop(columns=["feller_ratio", "regime"]), index_name="horizon_years")
+    return _step_headers(rows, step)
 
 
 @sheet_function(

@@ -15,7 +15,14 @@ from .monte_carlo import BLOCK, DEFAULT_SEED, MCResult, expected_negative_step_f
 from .params import HestonParams
 from .report import DEFAULT_QUANTILES, variance_report
 from .validation import InputError
-from .variance import euler_max_step, euler_negative_probability, feller_ratio, regime_label
+from .variance import (
+    EulerWorstCase,
+    euler_max_step,
+    euler_negative_probability,
+    euler_worst_case,
+    feller_ratio,
+    regime_label,
+)
 from .verdict import (
     BIASED,
     CONSISTENT,
@@ -42,6 +49,7 @@ __all__ = [
     "TINY_VARIANCE",
     "UNDECIDED",
     "Comparison",
+    "EulerWorstCase",
     "FourierCheckError",
     "FourierDetails",
     "HestonParams",
@@ -55,6 +63,7 @@ __all__ = [
     "compare_mc_fourier",
     "euler_max_step",
     "euler_negative_probability",
+    "euler_worst_case",
     "expected_negative_step_fraction",
     "feller_ratio",
     "heston_implied_vol",
