@@ -21,6 +21,7 @@ from __future__ import annotations
 import contextlib
 import contextvars
 import functools
+import inspect
 import math
 import traceback
 from dataclasses import dataclass
@@ -32,8 +33,11 @@ from rootvar.core import (
     DEFAULT_SEED,
     DEFAULT_TOLERANCE_BP,
     SCHEMES,
+    FourierCheckError,
+    InputError,
     __version__,
     cir_transition,
+    cir_transition_shapes,
     compare_mc_fourier,
     euler_max_step,
     euler_negative_probability,
@@ -56,9 +60,10 @@ from .cells import (
     to_numbers,
     to_params,
     to_text_list,
+    within,
 )
 
-__all__ = ["MAX_PATH_STEPS", "REGISTRY", "SheetFunction"]
+__all__ = ["MAX_PATH_STEPS", "MAX_SEED", "REGISTRY", "SheetFunction", "work_cap"]
 
 #: Most path-steps one cell may ask for in a spreadsheet program; bigger runs
 #: belong in an asynchronous function or the headless engine, which has no
@@ -81,6 +86,9 @@ def work_cap(max_path_steps: int | None):
 
 
 KINDS = ("call", "put")
+#: Largest seed a cell takes: 15 digits, all a spreadsheet keeps of a number, so a
+#: seed copied out of a cell and typed back in is the same seed.
+MAX_SEED = 10**15 - 1
 SCHEME_NAMES = tuple(SCHEMES)
 
 
@@ -112,15 +120,21 @@ def sheet_function(result: str, **arg_docs: str):
     """
 
     def decorate(f):
+        signature = inspect.signature(f)
+        needed = [n for n, p in signature.parameters.items() if p.default is p.empty]
+
         @functools.wraps(f)
         def guarded(*args):
+            try:
+                signature.bind(*args)
+            except TypeError:
+                return error_text(_arity_text(f.__name__, needed, len(signature.parameters), args))
             try:
                 return f(*args)
             except CellError as exc:
                 return error_text(str(exc))
             except Exception as exc:
-                last = traceback.extract_tb(exc.__traceback__)[-1]
-                return error_text(f"{type(exc).__name__}: {exc} (at {last.name})")
+                return error_text(_plain_failure(f.__name__, exc))
 
         wrapped = guarded
         for arg, doc in reversed(list(arg_docs.items())):
@@ -133,6 +147,31 @@ def sheet_function(result: str, **arg_docs: str):
         return wrapped
 
     return decorate
+
+
+def _arity_text(name: str, needed: list[str], most: int, args) -> str:
+    if len(args) > most:
+        return f"{name} takes at most {most} arguments, got {len(args)}"
+    missing = needed[len(args) :]
+    return f"{name} needs {', '.join(needed)}; missing {', '.join(missing)}"
+
+
+def _plain_failure(name: str, exc: Exception) -> str:
+    """Words for an unexpected failure: the rule or the cause, never a Python class name.
+
+    Inputs are checked up front, so reaching here means a computation failed
+    on inputs that passed; the message says so and what to try.
+    """
+    if isinstance(exc, InputError):  # a core rule, named after the core's argument
+        return f"{name} could not compute these inputs: {exc}"
+    if isinstance(exc, FourierCheckError):
+        return f"{name}: the Fourier price could not be certified for these inputs ({exc})"
+    if isinstance(exc, MemoryError):
+        return f"{name}: these inputs need more memory than is available; reduce the work"
+    if isinstance(exc, (OverflowError, FloatingPointError, ZeroDivisionError)):
+        return f"{name}: an intermediate number overflowed for these inputs; check their scale"
+    where = traceback.extract_tb(exc.__traceback__)[-1].name
+    return f"{name} failed on these inputs ({exc or 'no detail'}, in {where}); please report it"
 
 
 def _column(values) -> list[list]:
@@ -208,20 +247,52 @@ def _pairs(rows) -> list[list]:
     return [[label, _finite(value)] for label, value in rows]
 
 
+#: Longest maturity or horizon a cell takes, years.
+MAX_YEARS = 100.0
+#: Shortest option maturity a cell prices, years (about two trading hours): below
+#: it the certified Fourier range needs more terms than its cap for high variances.
+MIN_MATURITY = 1e-3
+#: Largest noncentrality of the exact law a cell evaluates: its left-tail
+#: quantiles sum a Poisson series of about that many terms (memory and time).
+MAX_NONCENTRALITY = 1e7
+
+
+def _horizons(name: str, p, values) -> np.ndarray:
+    """Horizons in (0, 100] years on which the exact law is affordable, checked up front."""
+    hs = np.atleast_1d(values)
+    for t in hs:
+        within(name, float(t), 0.0, MAX_YEARS)
+    shapes = cir_transition_shapes(p.v0, p.kappa, p.theta, p.vol_of_vol, hs)
+    nc = np.atleast_1d(shapes[1])
+    if np.any(nc > MAX_NONCENTRALITY):
+        # nc ~ 4 v0 / (vol_of_vol^2 t) for short horizons: the shortest affordable one
+        shortest = 4.0 * p.v0 / (p.vol_of_vol**2 * MAX_NONCENTRALITY)
+        raise CellError(
+            f"{name} is too short for this v0 and vol_of_vol: the exact law would need a "
+            f"series of more than {MAX_NONCENTRALITY:,.0f} terms; use a horizon of at least "
+            f"{float(f'{shortest * 1.01:.2g}'):g} years, got {float(hs[np.argmax(nc)])!r}"
+        )
+    return hs
+
+
 def _law(params, horizon):
     """Exact law of the variance at a horizon, from cell arguments."""
     p = to_params("params", params)
-    t = to_number("horizon", horizon, ">0")
+    t = float(_horizons("horizon", p, to_number("horizon", horizon, ">0"))[0])
     return cir_transition(p.v0, p.kappa, p.theta, p.vol_of_vol, t)
 
 
 def _market(spot, strike, maturity, rate, div_yield, kind):
+    s = to_number("spot", spot, ">0")
+    ks = to_numbers("strike", strike, ">0")
+    for k in ks:  # beyond e^20 either way an option is all intrinsic or worthless
+        within("strike / spot", float(k) / s, math.exp(-20.0), math.exp(20.0))
     return (
-        to_number("spot", spot, ">0"),
-        to_numbers("strike", strike, ">0"),
-        to_number("maturity", maturity, ">0"),
-        to_number("rate", rate, default=0.0),
-        to_number("div_yield", div_yield, default=0.0),
+        s,
+        ks,
+        within("maturity", to_number("maturity", maturity, ">0"), MIN_MATURITY, MAX_YEARS),
+        within("rate", to_number("rate", rate, default=0.0), -1.0, 1.0),
+        within("div_yield", to_number("div_yield", div_yield, default=0.0), -1.0, 1.0),
         to_choice("kind", kind, KINDS, "call"),
     )
 
@@ -332,7 +403,7 @@ def ROOTVAR_VAR_TABLE(params, horizons, probabilities=None, dt=None, near_zero=N
     from rootvar.core import DEFAULT_QUANTILES
 
     p = to_params("params", params)
-    hs = to_numbers("horizons", horizons, ">0")
+    hs = _horizons("horizons", p, to_numbers("horizons", horizons, ">0"))
     qs = (
         DEFAULT_QUANTILES
         if probabilities is None
@@ -427,7 +498,7 @@ def _mc_args(params, spot, strike, maturity, rate, div_yield, kind, scheme, step
     sch = to_choice("scheme", scheme, SCHEME_NAMES, "qe")
     n_steps = to_int("steps", steps, 32, 1, 100_000)
     n_paths = to_int("paths", paths, 20_000, 2, 10_000_000)
-    sd = to_int("seed", seed, DEFAULT_SEED, 0)
+    sd = to_int("seed", seed, DEFAULT_SEED, 0, MAX_SEED)
     return p, s, k, t, r, q, kd, sch, n_steps, n_paths, sd
 
 
@@ -564,7 +635,7 @@ def ROOTVAR_STEP_STUDY(
         else [to_int("steps_list", n, 1, 1, 100_000) for n in to_numbers("steps_list", steps_list)]
     )
     n_paths = to_int("paths", paths, 10_000, 2, 10_000_000)
-    sd = to_int("seed", seed, DEFAULT_SEED, 0)
+    sd = to_int("seed", seed, DEFAULT_SEED, 0, MAX_SEED)
     tol = to_number("tolerance_bp", tolerance_bp, ">0", default=DEFAULT_TOLERANCE_BP)
     anti = to_bool("antithetic", antithetic, False)
     if anti and n_paths % 2:

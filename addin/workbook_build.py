@@ -154,8 +154,8 @@ def build_parameter_check(path: Path) -> None:
     for i, h in enumerate(horizons):
         law.cell(row=14 + i, column=1, value=h).fill = _INPUT
     h_range = f"A14:A{13 + len(horizons)}"
-    n_low = sum(q < 0.5 for q in DEFAULT_QUANTILES)
-    cols = 1 + 2 + len(DEFAULT_QUANTILES) + 2 + n_low + 1
+    # horizon, mean, std, quantiles, near zero, Euler at v0, worst case, v*, P(v <= v*), notes
+    cols = 1 + 2 + len(DEFAULT_QUANTILES) + 1 + 4 + 1
     law["C13"] = "exact-law table"
     law["C13"].font = _BOLD
     _array(law, "C14", 1 + len(horizons), cols, f"=ROOTVAR_VAR_TABLE({block},{h_range},,B10,B11)")

@@ -83,10 +83,11 @@ def row_seed(base_seed: int, model_id: str) -> int:
 
     A SHA-256 digest, not Python's ``hash`` (which is salted per process), so
     the same model gets the same seed in every process and on every worker.
-    Kept below 2**53 so a spreadsheet cell (a double) holds it exactly.
+    Kept below 10**15: a spreadsheet keeps 15 significant digits of a
+    number, so the seed shown in a cell, copied and typed back, is the seed.
     """
     digest = hashlib.sha256(f"{int(base_seed)}:{model_id}".encode()).digest()
-    return int.from_bytes(digest[:8], "big") >> 11
+    return int.from_bytes(digest[:8], "big") % 10**15
 
 
 def _steps(maturity: float, per_year: int) -> int:

@@ -240,9 +240,7 @@ def test_headless_compute_runs_a_cell_over_the_spreadsheet_cap(tmp_path):
     def fill(ws, wb):
         for i, v in enumerate((0.04, 1.5, 0.04, 0.5, -0.7), start=1):
             ws[f"B{i}"] = v
-        ws["D1"] = ArrayFormula(
-            "D1:E8", '=ROOTVAR_MC_PRICE(B1:B5,100,100,1,0,0,,"qe",32,1562600)'
-        )
+        ws["D1"] = ArrayFormula("D1:E8", '=ROOTVAR_MC_PRICE(B1:B5,100,100,1,0,0,,"qe",32,1562600)')
 
     path = _book(tmp_path, fill)
     report = compute_workbook(path, tmp_path / "out.xlsx")
