@@ -30,8 +30,10 @@ import numpy as np
 import xlwings as xw
 
 from rootvar.core import (
+    DEFAULT_PATHS,
     DEFAULT_SEED,
     DEFAULT_TOLERANCE_BP,
+    DEFAULT_Z,
     SCHEMES,
     FourierCheckError,
     InputError,
@@ -365,7 +367,7 @@ def ROOTVAR_EULER_SAFE_STEP(params, tolerance, variance=None):
 @sheet_function(
     "number: annualised variance (0 where it underflows a double)",
     params=PARAMS_DOC,
-    horizon="horizon in years, > 0",
+    horizon="horizon in years, in (0, 100]",
     probability="level in (0, 1)",
 )
 def ROOTVAR_VAR_QUANTILE(params, horizon, probability):
@@ -376,7 +378,7 @@ def ROOTVAR_VAR_QUANTILE(params, horizon, probability):
 @sheet_function(
     "number: probability in [0, 1]",
     params=PARAMS_DOC,
-    horizon="horizon in years, > 0",
+    horizon="horizon in years, in (0, 100]",
     level="variance level, >= 0",
 )
 def ROOTVAR_VAR_CDF(params, horizon, level):
@@ -387,7 +389,7 @@ def ROOTVAR_VAR_CDF(params, horizon, level):
 @sheet_function(
     "table: header row, then one row per horizon",
     params=PARAMS_DOC,
-    horizons="range of horizons in years, > 0",
+    horizons="range of horizons in years, in (0, 100]",
     probabilities="range of quantile levels in (0, 1) (empty: 0.1% to 99%, eight levels)",
     dt="production Euler step in years (empty: 1/252)",
     near_zero="variance level counted as near zero (empty: 1e-4)",
@@ -420,7 +422,7 @@ def ROOTVAR_VAR_TABLE(params, horizons, probabilities=None, dt=None, near_zero=N
     params=PARAMS_DOC,
     spot="spot price, > 0",
     strike="strike or range of strikes, > 0",
-    maturity="years, > 0",
+    maturity="years, in [0.001, 100]",
     rate="continuous rate (empty: 0)",
     div_yield="continuous dividend yield (empty: 0)",
     kind="call or put (empty: call)",
@@ -437,7 +439,7 @@ def ROOTVAR_FOURIER_PRICE(params, spot, strike, maturity, rate=None, div_yield=N
     params=PARAMS_DOC,
     spot="spot price, > 0",
     strike="strike or range of strikes, > 0",
-    maturity="years, > 0",
+    maturity="years, in [0.001, 100]",
     rate="continuous rate (empty: 0)",
     div_yield="continuous dividend yield (empty: 0)",
 )
@@ -455,7 +457,7 @@ def ROOTVAR_FOURIER_VOL(params, spot, strike, maturity, rate=None, div_yield=Non
     price="option price, > 0",
     spot="spot price, > 0",
     strike="strike, > 0",
-    maturity="years, > 0",
+    maturity="years, in [0.001, 100]",
     rate="continuous rate (empty: 0)",
     div_yield="continuous dividend yield (empty: 0)",
     kind="call or put (empty: call)",
@@ -474,7 +476,7 @@ _MC_DOCS = dict(
     params=PARAMS_DOC,
     spot="spot price, > 0",
     strike="strike, > 0",
-    maturity="years, > 0",
+    maturity="years, in [0.001, 100]",
     rate="continuous rate (empty: 0)",
     div_yield="continuous dividend yield (empty: 0)",
     kind="call or put (empty: call)",
@@ -491,13 +493,15 @@ def _cached_mc(p, s, k, t, r, q, kind, scheme, steps, paths, seed, anti, cond):
     return mc_price(p, s, k, t, r, q, kind, scheme, steps, paths, seed, anti, cond)
 
 
-def _mc_args(params, spot, strike, maturity, rate, div_yield, kind, scheme, steps, paths, seed):
+def _mc_args(
+    params, spot, strike, maturity, rate, div_yield, kind, scheme, steps, paths, seed, n=20_000
+):
     p = to_params("params", params)
     s, ks, t, r, q, kd = _market(spot, strike, maturity, rate, div_yield, kind)
     k = _single_strike(ks)
     sch = to_choice("scheme", scheme, SCHEME_NAMES, "qe")
     n_steps = to_int("steps", steps, 32, 1, 100_000)
-    n_paths = to_int("paths", paths, 20_000, 2, 10_000_000)
+    n_paths = to_int("paths", paths, n, 2, 10_000_000)
     sd = to_int("seed", seed, DEFAULT_SEED, 0, MAX_SEED)
     return p, s, k, t, r, q, kd, sch, n_steps, n_paths, sd
 
@@ -549,9 +553,10 @@ def ROOTVAR_MC_PRICE(
 
 @sheet_function(
     "table: label / value rows ending with the verdict and its reason",
-    **_MC_DOCS,
-    tolerance_bp="tolerance in implied-vol basis points (empty: 5)",
-    z="band width in standard errors (empty: 3)",
+    **{**_MC_DOCS, "paths": f"number of paths (empty: {DEFAULT_PATHS})"},
+    tolerance_bp=f"tolerance in implied-vol basis points (empty: {DEFAULT_TOLERANCE_BP:g})",
+    z=f"band width in standard errors (empty: {DEFAULT_Z:g})",
+    antithetic="TRUE to mirror the draws (empty: TRUE)",
 )
 def ROOTVAR_MC_CHECK(
     params,
@@ -567,16 +572,40 @@ def ROOTVAR_MC_CHECK(
     seed=None,
     tolerance_bp=None,
     z=None,
+    antithetic=None,
 ):
-    """Fourier against Monte Carlo (conditional) for one vanilla, with a verdict."""
+    """Fourier against Monte Carlo (conditional) for one vanilla, with a verdict.
+
+    When undecided, "paths to settle" is the count at which a rerun decides in
+    90% of cases (from the tolerance and the noise per path); where that
+    count is over the per-cell cap, the reason says so and what to do.
+    """
     p, s, k, t, r, q, kd, sch, n_steps, n_paths, sd = _mc_args(
-        params, spot, strike, maturity, rate, div_yield, kind, scheme, steps, paths, seed
-    )
+        params, spot, strike, maturity, rate, div_yield, kind, scheme, steps, paths, seed,
+        DEFAULT_PATHS,
+    )  # fmt: skip
     tol = to_number("tolerance_bp", tolerance_bp, ">0", default=DEFAULT_TOLERANCE_BP)
-    width = to_number("z", z, ">0", default=3.0)
+    width = to_number("z", z, ">0", default=DEFAULT_Z)
+    anti = to_bool("antithetic", antithetic, True)
+    if anti and n_paths % 2:
+        raise CellError(f"paths must be even with antithetic TRUE, got {n_paths}")
     _check_work(n_paths, n_steps)
-    run = _cached_mc(p, s, k, t, r, q, kd, sch, n_steps, n_paths, sd, False, True)
+    run = _cached_mc(p, s, k, t, r, q, kd, sch, n_steps, n_paths, sd, anti, True)
     c = compare_mc_fourier(p, s, k, t, r, q, kd, tolerance_bp=tol, z=width, mc_result=run)
+    reason = str(c.reason)
+    cap = _CAP.get()
+    settle = int(c.paths_to_settle)
+    if cap is not None and settle * n_steps > cap:
+        where = (
+            "a spreadsheet cell: compute the workbook headless (rootvar compute), "
+            "or widen the tolerance"
+            if cap == MAX_PATH_STEPS
+            else "this run (--max-path-steps)"
+        )
+        reason += (
+            f"; {settle:,} paths x {n_steps} steps is over the cap of {cap:,} path-steps "
+            f"for {where}"
+        )
     return _pairs(
         [
             ["Fourier price", c.fourier_price],
@@ -587,8 +616,8 @@ def ROOTVAR_MC_CHECK(
             ["z-score", _finite(c.z_score)],
             ["tolerance (vol bp)", tol],
             ["verdict", str(c.verdict)],
-            ["paths to settle", int(c.paths_to_settle)],
-            ["reason", str(c.reason)],
+            ["paths to settle", settle],
+            ["reason", reason],
         ]
     )
 
@@ -598,7 +627,7 @@ def ROOTVAR_MC_CHECK(
     params=PARAMS_DOC,
     spot="spot price, > 0",
     strike="strike, > 0",
-    maturity="years, > 0",
+    maturity="years, in [0.001, 100]",
     rate="continuous rate (empty: 0)",
     div_yield="continuous dividend yield (empty: 0)",
     kind="call or put (empty: call)",
@@ -606,7 +635,7 @@ def ROOTVAR_MC_CHECK(
     steps_list="range of step counts (empty: 2, 4, 8, 16, 32)",
     paths="paths per cell of the grid (empty: 10000)",
     seed=f"random seed (empty: {DEFAULT_SEED})",
-    tolerance_bp="tolerance in implied-vol basis points (empty: 5)",
+    tolerance_bp=f"tolerance in implied-vol basis points (empty: {DEFAULT_TOLERANCE_BP:g})",
     antithetic="TRUE to mirror the draws (empty: FALSE)",
 )
 def ROOTVAR_STEP_STUDY(
