@@ -33,6 +33,7 @@ from graphlib import CycleError, TopologicalSorter
 from pathlib import Path
 
 from openpyxl import load_workbook
+from openpyxl.cell.cell import MergedCell
 from openpyxl.formula import Tokenizer
 from openpyxl.formula.tokenizer import Token
 from openpyxl.utils.cell import get_column_letter, range_boundaries
@@ -293,6 +294,11 @@ class _Book:
         self.occupied: set[tuple] = set()
         self.unreadable: dict[tuple, str] = {}  # cell -> message, formulas outside the subset
         for ws in wb.worksheets:
+            for merged in ws.merged_cells.ranges:  # covered cells of a merge hold nothing
+                for r in range(merged.min_row, merged.max_row + 1):
+                    for c in range(merged.min_col, merged.max_col + 1):
+                        if (r, c) != (merged.min_row, merged.min_col):
+                            self.occupied.add((ws.title, r, c))
             for row in ws.iter_rows():
                 for cell in row:
                     key = (ws.title, cell.row, cell.column)
@@ -537,6 +543,8 @@ def compute_workbook(template, out=None, max_path_steps=None) -> ComputeReport:
     outputs, report = evaluate_workbook(wb, max_path_steps)
     for (sheet, row, col), value in outputs.items():
         cell = wb[sheet].cell(row=row, column=col)
+        if isinstance(cell, MergedCell):  # an array range over a merge: the anchor shows it
+            continue
         cell.value = _cell_value(value)
         if isinstance(cell.value, str) and cell.value.startswith("="):
             cell.data_type = "s"  # a text that looks like a formula stays text
@@ -563,7 +571,13 @@ def compute_workbook(template, out=None, max_path_steps=None) -> ComputeReport:
 
 
 def _cell_value(value):
-    """A value as a cell can hold it (no NaN or infinity in a workbook)."""
+    """A value as a cell can hold it (no NaN or infinity in a workbook).
+
+    An empty text is written as an empty cell, so a long text beside it shows
+    in full, as it does in a spreadsheet program.
+    """
     if isinstance(value, float) and not math.isfinite(value):
-        return ""
+        return None
+    if value == "":
+        return None
     return value

@@ -43,6 +43,7 @@ from rootvar.core import (
     compare_mc_fourier,
     euler_max_step,
     euler_negative_probability,
+    euler_worst_case,
     feller_ratio,
     heston_implied_vol,
     heston_price,
@@ -676,11 +677,42 @@ def ROOTVAR_STEP_STUDY(
     rows.append(
         [
             "recommendation",
-            f"{best['scheme']} at {best['steps']} steps" if best else "none consistent",
+            f"{best['scheme']} at {best['steps']} steps"
+            if best
+            else (
+                f"none consistent: no scheme's band of 3 std errors fits within {tol:g} bp at "
+                "these paths and steps; add finer step counts or more paths"
+            ),
         ]
         + [""] * (len(rows[0]) - 2)
     )
     return rows
+
+
+@sheet_function(
+    "number: probability in [0, 1]",
+    params=PARAMS_DOC,
+    dt="Euler step in years, > 0 (1/252 is one trading day)",
+)
+def ROOTVAR_EULER_WORST_CASE(params, dt):
+    """Worst one-step Euler negative probability over all variance levels."""
+    p = to_params("params", params)
+    step = to_number("dt", dt, ">0")
+    return euler_worst_case(p.kappa, p.theta, p.vol_of_vol, step).probability
+
+
+@sheet_function(
+    "number: annualised variance, or the text 'unbounded' when the worst case is approached "
+    "only as the variance grows (kappa dt >= 1)",
+    params=PARAMS_DOC,
+    dt="Euler step in years, > 0 (1/252 is one trading day)",
+)
+def ROOTVAR_EULER_WORST_LEVEL(params, dt):
+    """Variance level v* where one Euler step is likeliest to turn negative."""
+    p = to_params("params", params)
+    step = to_number("dt", dt, ">0")
+    level = euler_worst_case(p.kappa, p.theta, p.vol_of_vol, step).level
+    return "unbounded" if math.isinf(level) else level
 
 
 @functools.lru_cache(maxsize=64)
