@@ -22,8 +22,10 @@ from rootvar.core.validation import as_float_array
 __all__ = [
     "MARK",
     "PARAM_ORDER",
+    "PARAM_RANGES",
     "CellError",
     "error_text",
+    "parameter_name",
     "to_bool",
     "to_choice",
     "to_int",
@@ -32,6 +34,7 @@ __all__ = [
     "to_params",
     "to_table",
     "to_text_list",
+    "within",
 ]
 
 #: Start of every error text a rootvar cell function returns.
@@ -68,6 +71,28 @@ _ALIASES = {
 
 class CellError(ValueError):
     """A cell argument broke its rule; the message is shown in the cell."""
+
+
+#: Ranges the cell functions accept for the parameters, beyond the core's own
+#: rules: wide enough for any calibration seen on a desk (a variance of 10 is a
+#: volatility of 316%), narrow enough that the numerics behind a cell stay
+#: inside what the tests cover.  Outside, a cell says so rather than compute.
+PARAM_RANGES = {
+    "v0": (0.0, 10.0),
+    "kappa": (1e-4, 1e3),
+    "theta": (1e-8, 10.0),
+    "vol_of_vol": (1e-4, 20.0),
+}
+
+
+def within(name: str, value: float, low: float, high: float) -> float:
+    """``value`` if it lies in ``[low, high]``, else a CellError naming the cell rule."""
+    if not low <= value <= high:
+        raise CellError(
+            f"{name} must lie in [{low:g}, {high:g}] for a cell function (the range its "
+            f"numerics are checked on), got {value!r}"
+        )
+    return value
 
 
 def error_text(message: str) -> str:
@@ -107,11 +132,7 @@ def _is_number(value) -> bool:
 
 def to_number(name: str, value, *rules: str, default=None) -> float:
     """One number; ``default`` stands in for an empty cell when given."""
-    if isinstance(value, (list, tuple)):
-        cells = _flat(value)
-        if len(cells) != 1:
-            raise CellError(f"{name} must be a single cell, got a range of {len(cells)} cells")
-        value = cells[0]
+    value = _single(name, value)
     if value is None and default is not None:
         value = default
     if not _is_number(value):
@@ -146,10 +167,19 @@ def to_int(name: str, value, default: int, low: int = 1, high: int | None = None
     return int(number)
 
 
+def _single(name: str, value):
+    """The one cell of a single-value argument; a range of several cells is an error."""
+    if isinstance(value, (list, tuple, np.ndarray)):
+        cells = _flat(value)
+        if len(cells) > 1:
+            raise CellError(f"{name} must be a single cell, got a range of {len(cells)} cells")
+        return cells[0] if cells else None
+    return value
+
+
 def to_bool(name: str, value, default: bool) -> bool:
     """TRUE/FALSE, 1/0 or the texts true/false/yes/no; empty gives ``default``."""
-    if isinstance(value, (list, tuple)):
-        value = (_flat(value) or [None])[0]
+    value = _single(name, value)
     if value is None:
         return default
     if isinstance(value, bool):
@@ -163,8 +193,7 @@ def to_bool(name: str, value, default: bool) -> bool:
 
 def to_choice(name: str, value, choices, default: str) -> str:
     """One of ``choices`` (text, case and spaces ignored); empty gives ``default``."""
-    if isinstance(value, (list, tuple)):
-        value = (_flat(value) or [None])[0]
+    value = _single(name, value)
     if value is None or (isinstance(value, str) and not value.strip()):
         return default
     if isinstance(value, str):
@@ -176,8 +205,10 @@ def to_choice(name: str, value, choices, default: str) -> str:
 
 
 def to_text_list(name: str, value, choices, default) -> list[str]:
-    """Several choices from one comma-separated text or a range of texts."""
-    cells = [c for c in _flat(value) if c is not None]
+    """Several choices from one comma-separated text or a range of texts; all blank: default."""
+    cells = [
+        c for c in _flat(value) if c is not None and not (isinstance(c, str) and not c.strip())
+    ]
     if not cells:
         return list(default)
     items = []
@@ -190,6 +221,11 @@ def to_text_list(name: str, value, choices, default) -> list[str]:
 
 def _label_key(label: str) -> str:
     return re.sub(r"[\s_\-.]", "", label.lower())
+
+
+def parameter_name(label: str) -> str | None:
+    """The parameter a label means (``"Vol of vol"``, ``"sigma"`` -> ``"vol_of_vol"``), or None."""
+    return _ALIASES.get(_label_key(label))
 
 
 def to_params(name: str, value) -> HestonParams:
@@ -212,6 +248,9 @@ def to_params(name: str, value) -> HestonParams:
             f"block, got {_describe(value)}"
         )
     rows = [list(r) if isinstance(r, (list, tuple)) else [r] for r in value]
+    if len({len(r) for r in rows}) > 1:
+        shape = " / ".join(str(len(r)) for r in rows)
+        raise CellError(f"{name} must be a rectangular range, got rows of {shape} cells")
     if rows and all(len(r) == 2 for r in rows) and any(isinstance(r[0], str) for r in rows):
         found: dict[str, object] = {}
         for label, val in rows:
@@ -247,9 +286,12 @@ def to_params(name: str, value) -> HestonParams:
             raise CellError(f"{name}: {key} must be a number, got {_describe(val)}")
         numbers_[key] = float(val)
     try:
-        return HestonParams(**numbers_)
+        params = HestonParams(**numbers_)
     except InputError as exc:
         raise CellError(f"{name}: {exc}") from exc
+    for key, (low, high) in PARAM_RANGES.items():  # the core's rules first, then the cell's
+        within(f"{name}: {key}", numbers_[key], low, high)
+    return params
 
 
 def to_table(name: str, value) -> dict:

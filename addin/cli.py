@@ -1,9 +1,10 @@
-"""The ``rootvar`` command line: ``rootvar demo``, ``rootvar report``, ``rootvar compile``."""
+"""The ``rootvar`` command line."""
 
 from __future__ import annotations
 
 import argparse
 import os
+import re
 import sys
 from pathlib import Path
 
@@ -15,25 +16,18 @@ from rootvar.core import (
     __version__,
     euler_max_step,
     euler_negative_probability,
+    euler_worst_case,
     variance_report,
 )
 
+from .cells import PARAM_ORDER, parameter_name
 from .cli_text import CAUTION
+from .cli_types import NO_LIMIT, number, numbers, path_steps_cap, positive_int, positive_number
 from .demo_desk import DESK_NAME, demo_models
+from .functions import trading_days
 
 #: Exit codes shared by every command (see ``rootvar refresh --help``).
 EXIT_INTERNAL, EXIT_INTERRUPTED = 4, 130
-
-
-def positive_int(text: str) -> int:
-    """argparse type: a whole number >= 1."""
-    try:
-        value = int(text)
-    except ValueError as exc:
-        raise argparse.ArgumentTypeError(f"must be a whole number >= 1, got {text!r}") from exc
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"must be a whole number >= 1, got {text!r}")
-    return value
 
 
 def non_negative_float(text: str) -> float:
@@ -47,11 +41,17 @@ def non_negative_float(text: str) -> float:
     return value
 
 
-def _floats(text: str) -> list[float]:
-    try:
-        return [float(x) for x in text.split(",") if x.strip()]
-    except ValueError as exc:
-        raise argparse.ArgumentTypeError(f"expected comma-separated numbers, got {text!r}") from exc
+COMMANDS_TEXT = """commands:
+  report            variance report for one parameter set (Feller ratio, Euler risk, exact law)
+  demo              report on the invented demo desk, then build and compute its workbooks
+  build-workbooks   build the shipped workbook templates
+  compute           compute a workbook's formulas headlessly and save a copy with values
+  refresh           refresh the daily control workbook (all models, headless)
+  history           show or export the control history store, with a trend chart
+  calibrate         calibrate Heston to a quotes file, free and with Feller enforced
+  compile           compile the numerical kernels ahead of time (once per machine)
+
+Run "rootvar COMMAND --help" for the options of one command."""
 
 
 def _print_report(params: HestonParams, horizons, dt: float, tolerance: float, out) -> None:
@@ -60,10 +60,12 @@ def _print_report(params: HestonParams, horizons, dt: float, tolerance: float, o
     neg = euler_negative_probability(p.v0, p.kappa, p.theta, p.vol_of_vol, dt)
     safe = euler_max_step(p.v0, p.kappa, p.theta, p.vol_of_vol, tolerance)
     print(f"  Feller ratio {p.feller_ratio:.4f} ({table.attrs['regime']})", file=out)
-    print(f"  Euler one-step negative probability from v0 at dt={dt:.6g} y: {neg:.3e}", file=out)
-    safe_text = (
-        "any step" if safe == float("inf") else f"{safe:.6g} y ({safe * 252:.3g} trading days)"
-    )
+    worst, level = euler_worst_case(p.kappa, p.theta, p.vol_of_vol, dt)
+    step = f"dt={dt:.6g} y ({trading_days(dt)})"
+    print(f"  Euler one-step negative probability from v0 at {step}: {neg:.3e}", file=out)
+    where = "as v grows without bound" if level == float("inf") else f"at v* = {level:.4g}"
+    print(f"  Euler worst case over all variance levels at {step}: {worst:.3e} {where}", file=out)
+    safe_text = NO_LIMIT if safe == float("inf") else f"{safe:.6g} y ({trading_days(safe)})"
     print(f"  Largest Euler step keeping it <= {tolerance:g}: {safe_text}", file=out)
     shown = table.drop(columns=["feller_ratio", "regime"])
     with pd.option_context(
@@ -182,16 +184,23 @@ def _cmd_build(args) -> int:
 
 
 def _cmd_compute(args) -> int:
-    from .engine import FormulaError, compute_workbook
+    from .engine import FormulaError, WorkbookFileError, compute_workbook
 
     try:
-        report = compute_workbook(args.workbook, args.out)
-    except (FormulaError, OSError, KeyError, ValueError) as exc:
-        print(f"rootvar compute: {exc}", file=sys.stderr)
+        report = compute_workbook(args.workbook, args.out, args.max_path_steps)
+    except (FormulaError, WorkbookFileError) as exc:
+        print(f"rootvar compute: {exc}; nothing was written", file=sys.stderr)
         return 2
     print(f"{report.formulas} formulas computed in {report.passes} passes -> {report.output}")
-    for cell, text in report.error_cells:
-        print(f"  {cell}: {text}")
+    if report.unsupported:
+        print(f"{len(report.unsupported)} cells use functions or syntax the engine cannot compute:")
+        for _cell, text in report.unsupported:
+            print(f"  {text}")
+    others = [(c, t) for c, t in report.error_cells if (c, t) not in report.unsupported]
+    if others:
+        print(f"{len(others)} cells hold error texts:")
+        for cell, text in others:
+            print(f"  {cell}: {text}")
     return 3 if report.error_cells else 0
 
 
@@ -213,36 +222,72 @@ def _cmd_compile(args) -> int:
     return 0
 
 
+def _parameter_aliases(argv: list[str]) -> list[str]:
+    """Parameter options spelt as on a sheet (``--sigma``, ``--vol_of_vol``) in one spelling."""
+    out = []
+    for arg in argv:
+        match = re.fullmatch(r"--([A-Za-z][\w\-. ]*)(=.*)?", arg)
+        name = parameter_name(match.group(1)) if match else None
+        out.append(f"--{name.replace('_', '-')}{match.group(2) or ''}" if name else arg)
+    return out
+
+
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(prog="rootvar", description=__doc__)
+    parser = argparse.ArgumentParser(
+        prog="rootvar",
+        description="Heston/CIR variance checks, Fourier and Monte Carlo prices, and workbook "
+        "controls.",
+        epilog=COMMANDS_TEXT,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
     parser.add_argument("--version", action="version", version=f"rootvar {__version__}")
-    sub = parser.add_subparsers(dest="command", required=True)
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
     common = argparse.ArgumentParser(add_help=False)
     common.add_argument(
         "--horizons",
-        type=_floats,
+        type=numbers,
         default=[0.25, 1.0, 5.0],
-        help="horizons in years, comma-separated (default 0.25,1,5)",
+        help="horizons in years, comma-separated, fractions allowed (default 0.25,1,5)",
     )
     common.add_argument(
         "--dt",
-        type=float,
+        type=positive_number,
         default=1.0 / 252.0,
-        help="production Euler step in years (default 1/252)",
+        help="production Euler step in years, a number or a fraction (default 1/252, one "
+        "trading day)",
     )
     common.add_argument(
         "--tolerance",
-        type=float,
+        type=number,
         default=1e-3,
-        help="acceptable one-step negative probability (default 1e-3)",
+        help="acceptable one-step negative probability, a probability in (0, 1) (default 1e-3)",
     )
 
     report = sub.add_parser(
-        "report", parents=[common], help="variance report for one parameter set"
+        "report",
+        parents=[common],
+        help="variance report for one parameter set",
+        description="Variance report for one parameter set. The parameters accept the same "
+        "labels as a sheet's parameter block: case, spaces, underscores and hyphens are "
+        "ignored, and sigma, xi, eta or vol-of-vol all mean vol_of_vol, mean-reversion means "
+        "kappa, long-run-variance theta, initial-variance v0, correlation rho.",
     )
-    for name in ("v0", "kappa", "theta", "vol-of-vol", "rho"):
-        report.add_argument(f"--{name}", type=float, required=True)
+    units = {
+        "v0": "initial variance, annualised (0.04 is 20%% volatility), >= 0",
+        "kappa": "mean-reversion speed, per year, > 0",
+        "theta": "long-run variance, annualised, > 0",
+        "vol_of_vol": "volatility of variance, per sqrt(year), > 0 (alias --sigma, --xi, --eta)",
+        "rho": "correlation of spot and variance, in [-1, 1]",
+    }
+    for name in PARAM_ORDER:
+        report.add_argument(
+            f"--{name.replace('_', '-')}",
+            dest=name,
+            type=number,
+            required=True,
+            help=units[name],
+        )
     report.set_defaults(func=_cmd_report)
 
     demo = sub.add_parser(
@@ -264,6 +309,14 @@ def build_parser() -> argparse.ArgumentParser:
     )
     compute.add_argument("workbook")
     compute.add_argument("--out", help="computed copy (default <name>.computed.xlsx beside it)")
+    compute.add_argument(
+        "--max-path-steps",
+        type=path_steps_cap,
+        default=None,
+        metavar="N",
+        help="cap on one cell's Monte Carlo work, in path-steps (paths x steps), or "
+        f"{NO_LIMIT} (default {NO_LIMIT}; a spreadsheet program applies 50,000,000)",
+    )
     compute.set_defaults(func=_cmd_compute)
 
     ref = sub.add_parser(
@@ -285,7 +338,7 @@ def build_parser() -> argparse.ArgumentParser:
         "--workers",
         type=positive_int,
         default=os.cpu_count() or 1,
-        help="local worker processes, >= 1 (default: all cores)",
+        help="local worker processes, a whole number >= 1 (default: all cores)",
     )
     ref.add_argument(
         "--scheduler",
@@ -330,15 +383,28 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+#: Exit code when the reader of our output went away (128 + SIGPIPE, as a shell reports it).
+EXIT_PIPE = 141
+
+
 def main(argv=None) -> int:
     """Entry point of the ``rootvar`` console command; returns the exit code."""
     parser = build_parser()
-    args = parser.parse_args(argv)
+    argv = list(sys.argv[1:] if argv is None else argv)
+    args = parser.parse_args(_parameter_aliases(argv))
     try:
-        return args.func(args)
+        code = args.func(args)
+        sys.stdout.flush()
+        return code
     except InputError as exc:
         print(f"rootvar: {exc}", file=sys.stderr)
         return 2
+    except BrokenPipeError:
+        # `rootvar report ... | head`: the reader has what it wanted; end quietly.  Point
+        # stdout at devnull so the interpreter's final flush does not complain again.
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return EXIT_PIPE
     except KeyboardInterrupt:
         print("rootvar: interrupted", file=sys.stderr)
         return EXIT_INTERRUPTED

@@ -23,23 +23,32 @@ repeats until no value changes, so formulas that read spilled cells see them.
 
 from __future__ import annotations
 
+import difflib
 import math
 import os
 import tempfile
+import zipfile
 from dataclasses import dataclass, field
 from graphlib import CycleError, TopologicalSorter
 from pathlib import Path
 
 from openpyxl import load_workbook
+from openpyxl.cell.cell import MergedCell
 from openpyxl.formula import Tokenizer
 from openpyxl.formula.tokenizer import Token
 from openpyxl.utils.cell import get_column_letter, range_boundaries
 from openpyxl.worksheet.formula import ArrayFormula
 
 from .cells import MARK, error_text
-from .functions import REGISTRY
+from .functions import REGISTRY, work_cap
 
-__all__ = ["ComputeReport", "FormulaError", "compute_workbook", "evaluate_workbook"]
+__all__ = [
+    "ComputeReport",
+    "FormulaError",
+    "WorkbookFileError",
+    "compute_workbook",
+    "evaluate_workbook",
+]
 
 MAX_PASSES = 6
 
@@ -48,13 +57,29 @@ class FormulaError(ValueError):
     """A formula outside the supported subset, or a reference cycle."""
 
 
+class WorkbookFileError(OSError):
+    """The workbook cannot be read, or its computed copy cannot be written."""
+
+
+class _Unsupported(FormulaError):
+    """A cell's formula uses a function or element the engine cannot evaluate."""
+
+
 @dataclass
 class ComputeReport:
-    """What a computation did."""
+    """What a computation did.
+
+    ``unsupported`` lists the cells whose formula could not be evaluated at
+    all (an unknown or unsupported function, syntax outside the subset) as
+    ``(cell, message)``; those cells hold the message and every other cell
+    is computed.  ``error_cells`` lists every cell that ends with an error
+    text, those included.
+    """
 
     formulas: int = 0
     passes: int = 0
     error_cells: list = field(default_factory=list)  # (cell, text)
+    unsupported: list = field(default_factory=list)  # (cell, text)
     output: Path | None = None
 
 
@@ -267,7 +292,13 @@ class _Book:
         self.values: dict[tuple, object] = {}
         self.formulas: dict[tuple, tuple] = {}  # cell -> (text, tree, array ref or None)
         self.occupied: set[tuple] = set()
+        self.unreadable: dict[tuple, str] = {}  # cell -> message, formulas outside the subset
         for ws in wb.worksheets:
+            for merged in ws.merged_cells.ranges:  # covered cells of a merge hold nothing
+                for r in range(merged.min_row, merged.max_row + 1):
+                    for c in range(merged.min_col, merged.max_col + 1):
+                        if (r, c) != (merged.min_row, merged.min_col):
+                            self.occupied.add((ws.title, r, c))
             for row in ws.iter_rows():
                 for cell in row:
                     key = (ws.title, cell.row, cell.column)
@@ -276,12 +307,18 @@ class _Book:
                         continue
                     self.occupied.add(key)
                     where = f"{ws.title}!{cell.coordinate}"
-                    if isinstance(v, ArrayFormula):
-                        self.formulas[key] = (v.text, _parse(v.text, where), v.ref)
-                    elif isinstance(v, str) and v.startswith("="):
-                        self.formulas[key] = (v, _parse(v, where), None)
-                    else:
-                        self.values[key] = v
+                    try:
+                        if isinstance(v, ArrayFormula):
+                            self.formulas[key] = (v.text, _parse(v.text, where), v.ref)
+                        elif isinstance(v, str) and v.startswith("="):
+                            self.formulas[key] = (v, _parse(v, where), None)
+                        else:
+                            self.values[key] = v
+                    except FormulaError as exc:
+                        # one cell outside the subset must not stop the others
+                        message = error_text(str(exc))
+                        self.unreadable[key] = message
+                        self.values[key] = message
 
     def order(self):
         graph = {}
@@ -332,7 +369,7 @@ class _Book:
                 return REGISTRY[name].func(*args)
             if name in _BUILTINS:
                 return _BUILTINS[name](*args)
-            raise FormulaError(f"function {name} is not supported by the headless engine")
+            raise _Unsupported(_unknown_function(name))
         raise FormulaError(f"unknown node {kind}")
 
     def place(self, key, text, result, array_ref):
@@ -367,6 +404,28 @@ class _Book:
         return written
 
 
+def _unknown_function(name: str) -> str:
+    """Words for a function the engine does not know, with the closest known name."""
+    ours = name.upper().startswith("ROOTVAR_")
+    pool = list(REGISTRY) if ours else [*REGISTRY, *_BUILTINS]
+    close = difflib.get_close_matches(name.upper(), pool, n=1, cutoff=0.6)
+    hint = f"; did you mean {close[0]}?" if close else ""
+    if ours:
+        return f"function {name} is unknown: no rootvar function has that name{hint}"
+    return f"function {name} is not supported by the headless engine{hint}"
+
+
+def _plain(exc: Exception) -> str:
+    """An exception's message without the Python class name (cells show rules, not types)."""
+    if isinstance(exc, KeyError) and exc.args:
+        return str(exc.args[0])
+    if isinstance(exc, ZeroDivisionError):
+        return "division by zero"
+    if isinstance(exc, (OverflowError, MemoryError)):
+        return "a number is too large to compute with"
+    return str(exc) or "this formula cannot be computed"
+
+
 def _text(v):
     if v is None:
         return ""
@@ -382,28 +441,44 @@ def _name(key):
     return f"{sheet}!{get_column_letter(col)}{row}"
 
 
-def evaluate_workbook(wb) -> tuple[dict, ComputeReport]:
-    """Evaluate every formula of an openpyxl workbook; returns (cell values written, report)."""
+def evaluate_workbook(wb, max_path_steps=None) -> tuple[dict, ComputeReport]:
+    """Evaluate every formula of an openpyxl workbook; returns (cell values written, report).
+
+    ``max_path_steps`` caps the Monte Carlo work of one cell (``None``: no
+    cap, the default headless; a spreadsheet program applies
+    :data:`rootvar.addin.functions.MAX_PATH_STEPS`).  A cell whose formula
+    uses an unknown or unsupported function, or syntax outside the subset,
+    gets an error text naming it and is listed in ``report.unsupported``;
+    every other cell is computed.  A reference cycle still stops the run.
+    """
     book = _Book(wb)
     order = book.order()
-    report = ComputeReport(formulas=len(order))
-    outputs: dict[tuple, object] = {}
+    report = ComputeReport(formulas=len(order) + len(book.unreadable))
+    outputs: dict[tuple, object] = dict(book.unreadable)
+    unsupported = {key: text for key, text in book.unreadable.items()}
     previous = None
-    for pass_no in range(1, MAX_PASSES + 1):
-        outputs = {}
-        for key in order:
-            text, tree, array_ref = book.formulas[key]
-            try:
-                result = book.evaluate(tree, key[0])
-            except FormulaError as exc:
-                raise FormulaError(f"{_name(key)}: {exc}") from exc
-            except Exception as exc:
-                result = error_text(f"{type(exc).__name__}: {exc}")
-            outputs.update(book.place(key, text, result, array_ref))
-        report.passes = pass_no
-        if outputs == previous:
-            break
-        previous = outputs
+    with work_cap(max_path_steps):
+        for pass_no in range(1, MAX_PASSES + 1):
+            outputs = dict(book.unreadable)
+            for key in order:
+                text, tree, array_ref = book.formulas[key]
+                try:
+                    result = book.evaluate(tree, key[0])
+                except _Unsupported as exc:
+                    result = error_text(f"{_name(key)}: {exc}")
+                    unsupported[key] = result
+                except FormulaError as exc:
+                    raise FormulaError(f"{_name(key)}: {exc}") from exc
+                except Exception as exc:
+                    result = error_text(_plain(exc))
+                outputs.update(book.place(key, text, result, array_ref))
+            report.passes = pass_no
+            if outputs == previous:
+                break
+            previous = outputs
+    report.unsupported = sorted(
+        ((_name(k), v) for k, v in unsupported.items()), key=lambda item: item[0]
+    )
     report.error_cells = [
         (_name(k), v)
         for k, v in outputs.items()
@@ -412,7 +487,25 @@ def evaluate_workbook(wb) -> tuple[dict, ComputeReport]:
     return outputs, report
 
 
-def compute_workbook(template, out=None) -> ComputeReport:
+def _open(template: Path):
+    """The workbook, or one WorkbookFileError naming the file and the cause."""
+    if not template.exists():
+        raise WorkbookFileError(f"{template}: no such file")
+    if template.is_dir():
+        raise WorkbookFileError(f"{template}: is a folder, not a workbook")
+    if not os.access(template, os.R_OK):
+        raise WorkbookFileError(f"{template}: cannot be read (permission denied)")
+    if not zipfile.is_zipfile(template):
+        raise WorkbookFileError(f"{template}: not a workbook (an .xlsx or .xlsm file is a zip)")
+    try:
+        return load_workbook(template, keep_vba=template.suffix.lower() == ".xlsm")
+    except Exception as exc:  # openpyxl raises many kinds for a damaged archive
+        raise WorkbookFileError(
+            f"{template}: cannot be read as a workbook ({_plain(exc)})"
+        ) from exc
+
+
+def compute_workbook(template, out=None, max_path_steps=None) -> ComputeReport:
     """Compute a workbook headlessly and save a copy with values.
 
     Parameters
@@ -423,19 +516,35 @@ def compute_workbook(template, out=None) -> ComputeReport:
         Where to save the computed copy (default: ``<name>.computed.xlsx``
         beside the template).  Saved through a temporary file in the same
         folder and an atomic replace.
+    max_path_steps : int, optional
+        Cap on one cell's Monte Carlo work, paths x steps (default: none;
+        give :data:`rootvar.addin.functions.MAX_PATH_STEPS` to see what a
+        spreadsheet program would refuse).
 
     Returns
     -------
     ComputeReport
+
+    Raises
+    ------
+    WorkbookFileError
+        The template is missing, unreadable or not a workbook, or the folder
+        of ``out`` does not exist; nothing is written.
+    FormulaError
+        A reference cycle, or ``out`` is the template; nothing is written.
     """
     template = Path(template)
     out = Path(out) if out else template.with_name(template.stem + ".computed" + template.suffix)
+    wb = _open(template)
     if out.resolve() == template.resolve():
         raise FormulaError("the computed copy must not overwrite its template; give another --out")
-    wb = load_workbook(template, keep_vba=template.suffix.lower() == ".xlsm")
-    outputs, report = evaluate_workbook(wb)
+    if not out.parent.is_dir():
+        raise WorkbookFileError(f"{out}: its folder {out.parent} does not exist")
+    outputs, report = evaluate_workbook(wb, max_path_steps)
     for (sheet, row, col), value in outputs.items():
         cell = wb[sheet].cell(row=row, column=col)
+        if isinstance(cell, MergedCell):  # an array range over a merge: the anchor shows it
+            continue
         cell.value = _cell_value(value)
         if isinstance(cell.value, str) and cell.value.startswith("="):
             cell.data_type = "s"  # a text that looks like a formula stays text
@@ -444,11 +553,16 @@ def compute_workbook(template, out=None) -> ComputeReport:
             for cell in row:
                 if isinstance(cell.value, ArrayFormula):
                     cell.value = None
-    fd, tmp = tempfile.mkstemp(prefix=".rootvar-", suffix=out.suffix, dir=out.parent)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=".rootvar-", suffix=out.suffix, dir=out.parent)
+    except OSError as exc:
+        raise WorkbookFileError(f"{out}: cannot be written ({exc.strerror or exc})") from exc
     os.close(fd)
     try:
         wb.save(tmp)
         os.replace(tmp, out)
+    except OSError as exc:
+        raise WorkbookFileError(f"{out}: cannot be written ({exc.strerror or exc})") from exc
     finally:
         if os.path.exists(tmp):
             os.unlink(tmp)
@@ -457,7 +571,13 @@ def compute_workbook(template, out=None) -> ComputeReport:
 
 
 def _cell_value(value):
-    """A value as a cell can hold it (no NaN or infinity in a workbook)."""
+    """A value as a cell can hold it (no NaN or infinity in a workbook).
+
+    An empty text is written as an empty cell, so a long text beside it shows
+    in full, as it does in a spreadsheet program.
+    """
     if isinstance(value, float) and not math.isfinite(value):
-        return ""
+        return None
+    if value == "":
+        return None
     return value

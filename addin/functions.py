@@ -18,7 +18,10 @@ serve repeated identical calls from an in-process cache.
 
 from __future__ import annotations
 
+import contextlib
+import contextvars
 import functools
+import inspect
 import math
 import traceback
 from dataclasses import dataclass
@@ -27,15 +30,20 @@ import numpy as np
 import xlwings as xw
 
 from rootvar.core import (
+    DEFAULT_PATHS,
     DEFAULT_SEED,
     DEFAULT_TOLERANCE_BP,
+    DEFAULT_Z,
     SCHEMES,
+    FourierCheckError,
     InputError,
     __version__,
     cir_transition,
+    cir_transition_shapes,
     compare_mc_fourier,
     euler_max_step,
     euler_negative_probability,
+    euler_worst_case,
     feller_ratio,
     heston_implied_vol,
     heston_price,
@@ -56,14 +64,35 @@ from .cells import (
     to_params,
     to_table,
     to_text_list,
+    within,
 )
 
-__all__ = ["MAX_PATH_STEPS", "REGISTRY", "SheetFunction"]
+__all__ = ["MAX_PATH_STEPS", "MAX_SEED", "REGISTRY", "SheetFunction", "work_cap"]
 
-#: Most path-steps one cell may ask for; bigger runs belong in an
-#: asynchronous function or the headless engine.
+#: Most path-steps one cell may ask for in a spreadsheet program; bigger runs
+#: belong in an asynchronous function or the headless engine, which has no
+#: cap unless one is asked for (``rootvar compute --max-path-steps``).
 MAX_PATH_STEPS = 50_000_000
+
+# The cap in force for the calls of this thread/context: the spreadsheet's by
+# default, lifted by the headless engine through work_cap(None).
+_CAP: contextvars.ContextVar[int | None] = contextvars.ContextVar("cap", default=MAX_PATH_STEPS)
+
+
+@contextlib.contextmanager
+def work_cap(max_path_steps: int | None):
+    """Run the enclosed calls with another per-cell cap on paths x steps (``None``: no cap)."""
+    token = _CAP.set(max_path_steps)
+    try:
+        yield
+    finally:
+        _CAP.reset(token)
+
+
 KINDS = ("call", "put")
+#: Largest seed a cell takes: 15 digits, all a spreadsheet keeps of a number, so a
+#: seed copied out of a cell and typed back in is the same seed.
+MAX_SEED = 10**15 - 1
 SCHEME_NAMES = tuple(SCHEMES)
 
 
@@ -95,15 +124,21 @@ def sheet_function(result: str, **arg_docs: str):
     """
 
     def decorate(f):
+        signature = inspect.signature(f)
+        needed = [n for n, p in signature.parameters.items() if p.default is p.empty]
+
         @functools.wraps(f)
         def guarded(*args):
+            try:
+                signature.bind(*args)
+            except TypeError:
+                return error_text(_arity_text(f.__name__, needed, len(signature.parameters), args))
             try:
                 return f(*args)
             except CellError as exc:
                 return error_text(str(exc))
             except Exception as exc:
-                last = traceback.extract_tb(exc.__traceback__)[-1]
-                return error_text(f"{type(exc).__name__}: {exc} (at {last.name})")
+                return error_text(_plain_failure(f.__name__, exc))
 
         wrapped = guarded
         for arg, doc in reversed(list(arg_docs.items())):
@@ -116,6 +151,31 @@ def sheet_function(result: str, **arg_docs: str):
         return wrapped
 
     return decorate
+
+
+def _arity_text(name: str, needed: list[str], most: int, args) -> str:
+    if len(args) > most:
+        return f"{name} takes at most {most} arguments, got {len(args)}"
+    missing = needed[len(args) :]
+    return f"{name} needs {', '.join(needed)}; missing {', '.join(missing)}"
+
+
+def _plain_failure(name: str, exc: Exception) -> str:
+    """Words for an unexpected failure: the rule or the cause, never a Python class name.
+
+    Inputs are checked up front, so reaching here means a computation failed
+    on inputs that passed; the message says so and what to try.
+    """
+    if isinstance(exc, InputError):  # a core rule, named after the core's argument
+        return f"{name} could not compute these inputs: {exc}"
+    if isinstance(exc, FourierCheckError):
+        return f"{name}: the Fourier price could not be certified for these inputs ({exc})"
+    if isinstance(exc, MemoryError):
+        return f"{name}: these inputs need more memory than is available; reduce the work"
+    if isinstance(exc, (OverflowError, FloatingPointError, ZeroDivisionError)):
+        return f"{name}: an intermediate number overflowed for these inputs; check their scale"
+    where = traceback.extract_tb(exc.__traceback__)[-1].name
+    return f"{name} failed on these inputs ({exc or 'no detail'}, in {where}); please report it"
 
 
 def _column(values) -> list[list]:
@@ -151,9 +211,31 @@ def _header(column: str) -> str:
     }
     if column in fixed:
         return fixed[column]
-    if column.startswith("euler_neg_prob_at_q"):
-        return f"Euler negative-step prob. at {column.removeprefix('euler_neg_prob_at_')}"
     return column.replace("_", " ")
+
+
+def step_words(dt: float) -> str:
+    """A step in years as header words: years and trading days (252 a year)."""
+    return f"step {dt:.4g} y = {trading_days(dt)}"
+
+
+def trading_days(years: float) -> str:
+    """Years as trading days (252 a year, common practice, no source), in words."""
+    days = f"{years * 252:.3g}"
+    return f"{days} trading day" + ("" if days == "1" else "s")
+
+
+def _step_headers(rows: list[list], dt: float) -> list[list]:
+    """State the production step in the header of every column that depends on it."""
+    step = step_words(dt)
+    dependent = {
+        "Euler negative-step prob. at v0": f"Euler negative-step prob. at v0 ({step})",
+        "euler worst case": f"Euler worst-case negative-step prob. ({step})",
+        "euler worst level": f"riskiest variance level v* ({step})",
+        "p at or below worst level": f"P(variance <= v*) ({step})",
+    }
+    rows[0] = [dependent.get(h, h) for h in rows[0]]
+    return rows
 
 
 def _table(frame, index_name=None) -> list[list]:
@@ -169,20 +251,52 @@ def _pairs(rows) -> list[list]:
     return [[label, _finite(value)] for label, value in rows]
 
 
+#: Longest maturity or horizon a cell takes, years.
+MAX_YEARS = 100.0
+#: Shortest option maturity a cell prices, years (about two trading hours): below
+#: it the certified Fourier range needs more terms than its cap for high variances.
+MIN_MATURITY = 1e-3
+#: Largest noncentrality of the exact law a cell evaluates: its left-tail
+#: quantiles sum a Poisson series of about that many terms (memory and time).
+MAX_NONCENTRALITY = 1e7
+
+
+def _horizons(name: str, p, values) -> np.ndarray:
+    """Horizons in (0, 100] years on which the exact law is affordable, checked up front."""
+    hs = np.atleast_1d(values)
+    for t in hs:
+        within(name, float(t), 0.0, MAX_YEARS)
+    shapes = cir_transition_shapes(p.v0, p.kappa, p.theta, p.vol_of_vol, hs)
+    nc = np.atleast_1d(shapes[1])
+    if np.any(nc > MAX_NONCENTRALITY):
+        # nc ~ 4 v0 / (vol_of_vol^2 t) for short horizons: the shortest affordable one
+        shortest = 4.0 * p.v0 / (p.vol_of_vol**2 * MAX_NONCENTRALITY)
+        raise CellError(
+            f"{name} is too short for this v0 and vol_of_vol: the exact law would need a "
+            f"series of more than {MAX_NONCENTRALITY:,.0f} terms; use a horizon of at least "
+            f"{float(f'{shortest * 1.01:.2g}'):g} years, got {float(hs[np.argmax(nc)])!r}"
+        )
+    return hs
+
+
 def _law(params, horizon):
     """Exact law of the variance at a horizon, from cell arguments."""
     p = to_params("params", params)
-    t = to_number("horizon", horizon, ">0")
+    t = float(_horizons("horizon", p, to_number("horizon", horizon, ">0"))[0])
     return cir_transition(p.v0, p.kappa, p.theta, p.vol_of_vol, t)
 
 
 def _market(spot, strike, maturity, rate, div_yield, kind):
+    s = to_number("spot", spot, ">0")
+    ks = to_numbers("strike", strike, ">0")
+    for k in ks:  # beyond e^20 either way an option is all intrinsic or worthless
+        within("strike / spot", float(k) / s, math.exp(-20.0), math.exp(20.0))
     return (
-        to_number("spot", spot, ">0"),
-        to_numbers("strike", strike, ">0"),
-        to_number("maturity", maturity, ">0"),
-        to_number("rate", rate, default=0.0),
-        to_number("div_yield", div_yield, default=0.0),
+        s,
+        ks,
+        within("maturity", to_number("maturity", maturity, ">0"), MIN_MATURITY, MAX_YEARS),
+        within("rate", to_number("rate", rate, default=0.0), -1.0, 1.0),
+        within("div_yield", to_number("div_yield", div_yield, default=0.0), -1.0, 1.0),
         to_choice("kind", kind, KINDS, "call"),
     )
 
@@ -194,10 +308,16 @@ def _single_strike(strikes) -> float:
 
 
 def _check_work(paths: int, steps: int, cells: int = 1) -> None:
-    if paths * steps * cells > MAX_PATH_STEPS:
+    cap = _CAP.get()
+    if cap is not None and paths * steps * cells > cap:
+        where = (
+            "a spreadsheet cell; rootvar compute runs it headless without this cap"
+            if cap == MAX_PATH_STEPS
+            else "this run (rootvar compute --max-path-steps)"
+        )
         raise CellError(
-            f"paths x steps = {paths * steps * cells:,} exceeds {MAX_PATH_STEPS:,} for one cell; "
-            "run it asynchronously or headless (rootvar compute)"
+            f"paths x steps = {paths * steps * cells:,} exceeds the cap of {cap:,} "
+            f"path-steps for {where}"
         )
 
 
@@ -249,7 +369,7 @@ def ROOTVAR_EULER_SAFE_STEP(params, tolerance, variance=None):
 @sheet_function(
     "number: annualised variance (0 where it underflows a double)",
     params=PARAMS_DOC,
-    horizon="horizon in years, > 0",
+    horizon="horizon in years, in (0, 100]",
     probability="level in (0, 1)",
 )
 def ROOTVAR_VAR_QUANTILE(params, horizon, probability):
@@ -260,7 +380,7 @@ def ROOTVAR_VAR_QUANTILE(params, horizon, probability):
 @sheet_function(
     "number: probability in [0, 1]",
     params=PARAMS_DOC,
-    horizon="horizon in years, > 0",
+    horizon="horizon in years, in (0, 100]",
     level="variance level, >= 0",
 )
 def ROOTVAR_VAR_CDF(params, horizon, level):
@@ -271,30 +391,32 @@ def ROOTVAR_VAR_CDF(params, horizon, level):
 @sheet_function(
     "table: header row, then one row per horizon",
     params=PARAMS_DOC,
-    horizons="range of horizons in years, > 0",
+    horizons="range of horizons in years, in (0, 100]",
     probabilities="range of quantile levels in (0, 1) (empty: 0.1% to 99%, eight levels)",
     dt="production Euler step in years (empty: 1/252)",
     near_zero="variance level counted as near zero (empty: 1e-4)",
 )
 def ROOTVAR_VAR_TABLE(params, horizons, probabilities=None, dt=None, near_zero=None):
-    """Exact-law table of the variance: mean, spread, quantiles, mass near zero, Euler risk."""
+    """Exact-law table of the variance: mean, spread, quantiles, mass near zero, Euler risk.
+
+    The Euler columns are the one-step negative probability at v0, the worst
+    case of that probability over every variance level, the level v* where
+    it sits, and the exact-law probability of being at or below v*; each
+    header states the step.
+    """
     from rootvar.core import DEFAULT_QUANTILES
 
     p = to_params("params", params)
-    hs = to_numbers("horizons", horizons, ">0")
+    hs = _horizons("horizons", p, to_numbers("horizons", horizons, ">0"))
     qs = (
         DEFAULT_QUANTILES
         if probabilities is None
         else to_numbers("probabilities", probabilities, "(0,1)")
     )
-    table = variance_report(
-        p,
-        hs,
-        qs,
-        to_number("dt", dt, ">0", default=1 / 252),
-        to_number("near_zero", near_zero, ">0", default=1e-4),
-    )
-    return _table(table.drop(columns=["feller_ratio", "regime"]), index_name="horizon_years")
+    step = to_number("dt", dt, ">0", default=1 / 252)
+    table = variance_report(p, hs, qs, step, to_number("near_zero", near_zero, ">0", default=1e-4))
+    rows = _table(table.drop(columns=["feller_ratio", "regime"]), index_name="horizon_years")
+    return _step_headers(rows, step)
 
 
 @sheet_function(
@@ -302,7 +424,7 @@ def ROOTVAR_VAR_TABLE(params, horizons, probabilities=None, dt=None, near_zero=N
     params=PARAMS_DOC,
     spot="spot price, > 0",
     strike="strike or range of strikes, > 0",
-    maturity="years, > 0",
+    maturity="years, in [0.001, 100]",
     rate="continuous rate (empty: 0)",
     div_yield="continuous dividend yield (empty: 0)",
     kind="call or put (empty: call)",
@@ -319,7 +441,7 @@ def ROOTVAR_FOURIER_PRICE(params, spot, strike, maturity, rate=None, div_yield=N
     params=PARAMS_DOC,
     spot="spot price, > 0",
     strike="strike or range of strikes, > 0",
-    maturity="years, > 0",
+    maturity="years, in [0.001, 100]",
     rate="continuous rate (empty: 0)",
     div_yield="continuous dividend yield (empty: 0)",
 )
@@ -337,7 +459,7 @@ def ROOTVAR_FOURIER_VOL(params, spot, strike, maturity, rate=None, div_yield=Non
     price="option price, > 0",
     spot="spot price, > 0",
     strike="strike, > 0",
-    maturity="years, > 0",
+    maturity="years, in [0.001, 100]",
     rate="continuous rate (empty: 0)",
     div_yield="continuous dividend yield (empty: 0)",
     kind="call or put (empty: call)",
@@ -356,7 +478,7 @@ _MC_DOCS = dict(
     params=PARAMS_DOC,
     spot="spot price, > 0",
     strike="strike, > 0",
-    maturity="years, > 0",
+    maturity="years, in [0.001, 100]",
     rate="continuous rate (empty: 0)",
     div_yield="continuous dividend yield (empty: 0)",
     kind="call or put (empty: call)",
@@ -373,14 +495,16 @@ def _cached_mc(p, s, k, t, r, q, kind, scheme, steps, paths, seed, anti, cond):
     return mc_price(p, s, k, t, r, q, kind, scheme, steps, paths, seed, anti, cond)
 
 
-def _mc_args(params, spot, strike, maturity, rate, div_yield, kind, scheme, steps, paths, seed):
+def _mc_args(
+    params, spot, strike, maturity, rate, div_yield, kind, scheme, steps, paths, seed, n=20_000
+):
     p = to_params("params", params)
     s, ks, t, r, q, kd = _market(spot, strike, maturity, rate, div_yield, kind)
     k = _single_strike(ks)
     sch = to_choice("scheme", scheme, SCHEME_NAMES, "qe")
     n_steps = to_int("steps", steps, 32, 1, 100_000)
-    n_paths = to_int("paths", paths, 20_000, 2, 10_000_000)
-    sd = to_int("seed", seed, DEFAULT_SEED, 0)
+    n_paths = to_int("paths", paths, n, 2, 10_000_000)
+    sd = to_int("seed", seed, DEFAULT_SEED, 0, MAX_SEED)
     return p, s, k, t, r, q, kd, sch, n_steps, n_paths, sd
 
 
@@ -431,9 +555,10 @@ def ROOTVAR_MC_PRICE(
 
 @sheet_function(
     "table: label / value rows ending with the verdict and its reason",
-    **_MC_DOCS,
-    tolerance_bp="tolerance in implied-vol basis points (empty: 5)",
-    z="band width in standard errors (empty: 3)",
+    **{**_MC_DOCS, "paths": f"number of paths (empty: {DEFAULT_PATHS})"},
+    tolerance_bp=f"tolerance in implied-vol basis points (empty: {DEFAULT_TOLERANCE_BP:g})",
+    z=f"band width in standard errors (empty: {DEFAULT_Z:g})",
+    antithetic="TRUE to mirror the draws (empty: TRUE)",
 )
 def ROOTVAR_MC_CHECK(
     params,
@@ -449,16 +574,40 @@ def ROOTVAR_MC_CHECK(
     seed=None,
     tolerance_bp=None,
     z=None,
+    antithetic=None,
 ):
-    """Fourier against Monte Carlo (conditional) for one vanilla, with a verdict."""
+    """Fourier against Monte Carlo (conditional) for one vanilla, with a verdict.
+
+    When undecided, "paths to settle" is the count at which a rerun decides in
+    90% of cases (from the tolerance and the noise per path); where that
+    count is over the per-cell cap, the reason says so and what to do.
+    """
     p, s, k, t, r, q, kd, sch, n_steps, n_paths, sd = _mc_args(
-        params, spot, strike, maturity, rate, div_yield, kind, scheme, steps, paths, seed
-    )
+        params, spot, strike, maturity, rate, div_yield, kind, scheme, steps, paths, seed,
+        DEFAULT_PATHS,
+    )  # fmt: skip
     tol = to_number("tolerance_bp", tolerance_bp, ">0", default=DEFAULT_TOLERANCE_BP)
-    width = to_number("z", z, ">0", default=3.0)
+    width = to_number("z", z, ">0", default=DEFAULT_Z)
+    anti = to_bool("antithetic", antithetic, True)
+    if anti and n_paths % 2:
+        raise CellError(f"paths must be even with antithetic TRUE, got {n_paths}")
     _check_work(n_paths, n_steps)
-    run = _cached_mc(p, s, k, t, r, q, kd, sch, n_steps, n_paths, sd, False, True)
+    run = _cached_mc(p, s, k, t, r, q, kd, sch, n_steps, n_paths, sd, anti, True)
     c = compare_mc_fourier(p, s, k, t, r, q, kd, tolerance_bp=tol, z=width, mc_result=run)
+    reason = str(c.reason)
+    cap = _CAP.get()
+    settle = int(c.paths_to_settle)
+    if cap is not None and settle * n_steps > cap:
+        where = (
+            "a spreadsheet cell: compute the workbook headless (rootvar compute), "
+            "or widen the tolerance"
+            if cap == MAX_PATH_STEPS
+            else "this run (--max-path-steps)"
+        )
+        reason += (
+            f"; {settle:,} paths x {n_steps} steps is over the cap of {cap:,} path-steps "
+            f"for {where}"
+        )
     return _pairs(
         [
             ["Fourier price", c.fourier_price],
@@ -469,8 +618,8 @@ def ROOTVAR_MC_CHECK(
             ["z-score", _finite(c.z_score)],
             ["tolerance (vol bp)", tol],
             ["verdict", str(c.verdict)],
-            ["paths to settle", int(c.paths_to_settle)],
-            ["reason", str(c.reason)],
+            ["paths to settle", settle],
+            ["reason", reason],
         ]
     )
 
@@ -480,7 +629,7 @@ def ROOTVAR_MC_CHECK(
     params=PARAMS_DOC,
     spot="spot price, > 0",
     strike="strike, > 0",
-    maturity="years, > 0",
+    maturity="years, in [0.001, 100]",
     rate="continuous rate (empty: 0)",
     div_yield="continuous dividend yield (empty: 0)",
     kind="call or put (empty: call)",
@@ -488,7 +637,7 @@ def ROOTVAR_MC_CHECK(
     steps_list="range of step counts (empty: 2, 4, 8, 16, 32)",
     paths="paths per cell of the grid (empty: 10000)",
     seed=f"random seed (empty: {DEFAULT_SEED})",
-    tolerance_bp="tolerance in implied-vol basis points (empty: 5)",
+    tolerance_bp=f"tolerance in implied-vol basis points (empty: {DEFAULT_TOLERANCE_BP:g})",
     antithetic="TRUE to mirror the draws (empty: FALSE)",
 )
 def ROOTVAR_STEP_STUDY(
@@ -517,7 +666,7 @@ def ROOTVAR_STEP_STUDY(
         else [to_int("steps_list", n, 1, 1, 100_000) for n in to_numbers("steps_list", steps_list)]
     )
     n_paths = to_int("paths", paths, 10_000, 2, 10_000_000)
-    sd = to_int("seed", seed, DEFAULT_SEED, 0)
+    sd = to_int("seed", seed, DEFAULT_SEED, 0, MAX_SEED)
     tol = to_number("tolerance_bp", tolerance_bp, ">0", default=DEFAULT_TOLERANCE_BP)
     anti = to_bool("antithetic", antithetic, False)
     if anti and n_paths % 2:
@@ -529,11 +678,42 @@ def ROOTVAR_STEP_STUDY(
     rows.append(
         [
             "recommendation",
-            f"{best['scheme']} at {best['steps']} steps" if best else "none consistent",
+            f"{best['scheme']} at {best['steps']} steps"
+            if best
+            else (
+                f"none consistent: no scheme's band of 3 std errors fits within {tol:g} bp at "
+                "these paths and steps; add finer step counts or more paths"
+            ),
         ]
         + [""] * (len(rows[0]) - 2)
     )
     return rows
+
+
+@sheet_function(
+    "number: probability in [0, 1]",
+    params=PARAMS_DOC,
+    dt="Euler step in years, > 0 (1/252 is one trading day)",
+)
+def ROOTVAR_EULER_WORST_CASE(params, dt):
+    """Worst one-step Euler negative probability over all variance levels."""
+    p = to_params("params", params)
+    step = to_number("dt", dt, ">0")
+    return euler_worst_case(p.kappa, p.theta, p.vol_of_vol, step).probability
+
+
+@sheet_function(
+    "number: annualised variance, or the text 'unbounded' when the worst case is approached "
+    "only as the variance grows (kappa dt >= 1)",
+    params=PARAMS_DOC,
+    dt="Euler step in years, > 0 (1/252 is one trading day)",
+)
+def ROOTVAR_EULER_WORST_LEVEL(params, dt):
+    """Variance level v* where one Euler step is likeliest to turn negative."""
+    p = to_params("params", params)
+    step = to_number("dt", dt, ">0")
+    level = euler_worst_case(p.kappa, p.theta, p.vol_of_vol, step).level
+    return "unbounded" if math.isinf(level) else level
 
 
 @functools.lru_cache(maxsize=64)

@@ -29,12 +29,17 @@ def function_reference() -> str:
     lines.append("")
     lines.append("Arguments:")
     lines.append("")
-    seen = {}
-    for entry in REGISTRY.values():
+    seen: dict[str, dict[str, list[str]]] = {}  # argument -> doc -> functions using it
+    for name, entry in REGISTRY.items():
         for arg, doc in entry.args:
-            seen.setdefault(arg, doc)
-    for arg, doc in seen.items():
-        lines.append(f"- `{arg}`: {doc}")
+            seen.setdefault(arg, {}).setdefault(doc, []).append(name)
+    for arg, docs in seen.items():
+        if len(docs) == 1:
+            lines.append(f"- `{arg}`: {next(iter(docs))}")
+            continue
+        # the same argument with other defaults in some functions: say which is which
+        for doc, names in docs.items():
+            lines.append(f"- `{arg}` ({', '.join(f'`{n}`' for n in names)}): {doc}")
     return "\n".join(lines)
 
 

@@ -1,4 +1,8 @@
-"""Run the benchmarks: ``python -m benchmarks [variance ...]``."""
+"""Run the benchmarks: ``python -m benchmarks [variance ...]``.
+
+``python -m benchmarks verdict [SEEDS]`` runs the statistical sweep of the verdict
+(not part of the default set: it takes some minutes).
+"""
 
 from __future__ import annotations
 
@@ -11,7 +15,7 @@ ALL = ["variance", "fourier", "monte_carlo", "kernels", "refresh", "pde", "calib
 
 
 def main(argv: list[str]) -> int:
-    names = argv or ALL
+    names = [a for a in argv if not a.isdigit()] or ALL  # a number is an option of one bench
     print(f"rootvar benchmarks on {machine_line()}")
     for name in names:
         module = importlib.import_module(f"benchmarks.bench_{name}")

@@ -21,14 +21,25 @@ from .products import BarrierOption, EuropeanOption
 from .quotes import QuoteSet, StaticArbitrageWarning, read_quotes
 from .report import DEFAULT_QUANTILES, variance_report
 from .validation import InputError
-from .variance import euler_max_step, euler_negative_probability, feller_ratio, regime_label
+from .variance import (
+    EulerWorstCase,
+    euler_max_step,
+    euler_negative_probability,
+    euler_worst_case,
+    feller_ratio,
+    regime_label,
+)
 from .verdict import (
     BIASED,
     CONSISTENT,
+    DEFAULT_PATHS,
     DEFAULT_TOLERANCE_BP,
+    DEFAULT_Z,
+    PLANNING_SHARE,
     UNDECIDED,
     Comparison,
     compare_mc_fourier,
+    planning_paths,
     step_study,
 )
 
@@ -41,9 +52,12 @@ __all__ = [
     "BIASED",
     "BLOCK",
     "CONSISTENT",
+    "DEFAULT_PATHS",
     "DEFAULT_QUANTILES",
     "DEFAULT_SEED",
     "DEFAULT_TOLERANCE_BP",
+    "DEFAULT_Z",
+    "PLANNING_SHARE",
     "SCHEMES",
     "TINY_VARIANCE",
     "UNDECIDED",
@@ -51,6 +65,7 @@ __all__ = [
     "Calibration",
     "Comparison",
     "CompileNotice",
+    "EulerWorstCase",
     "EuropeanOption",
     "FourierCheckError",
     "FourierDetails",
@@ -71,6 +86,7 @@ __all__ = [
     "compile_kernels",
     "euler_max_step",
     "euler_negative_probability",
+    "euler_worst_case",
     "expected_negative_step_fraction",
     "feller_ratio",
     "heston_implied_vol",
@@ -83,6 +99,7 @@ __all__ = [
     "lewis_call_price",
     "mc_price",
     "pde_price",
+    "planning_paths",
     "read_quotes",
     "regime_label",
     "step_study",

@@ -8,7 +8,7 @@ import pandas as pd
 from .cir_law import TINY_VARIANCE, cir_transition
 from .params import HestonParams
 from .validation import InputError, as_float_array
-from .variance import euler_negative_probability, feller_ratio, regime_label
+from .variance import euler_negative_probability, euler_worst_case, feller_ratio, regime_label
 
 __all__ = ["DEFAULT_QUANTILES", "variance_report"]
 
@@ -52,9 +52,12 @@ def variance_report(
         One row per horizon, indexed by ``horizon_years``, with columns
         ``mean``, ``std``, one ``q<level>%`` column per quantile, ``p_below_near_zero``,
         ``euler_neg_prob_at_v0`` (the one-step negative probability at step
-        ``dt`` from today's variance) and ``euler_neg_prob_at_q<level>%``
-        for each level below 50% (the same probability from that quantile of
-        the variance at the horizon), plus ``feller_ratio``, ``regime`` and
+        ``dt`` from today's variance), ``euler_worst_case`` and
+        ``euler_worst_level`` (the largest one-step probability over every
+        variance level and the level ``v*`` where it sits, see
+        :func:`rootvar.core.euler_worst_case`) and ``p_at_or_below_worst_level``
+        (the exact-law ``P(v_t <= v*)``: how often the process is at or below
+        the riskiest level), plus ``feller_ratio``, ``regime`` and
         ``notes``.  A quantile that underflows a double is shown as 0.0 and
         ``notes`` says which ones are ``below 1e-300``.  ``DataFrame.attrs``
         carries the inputs, the Feller ratio and the regime.
@@ -63,6 +66,12 @@ def variance_report(
     -----
     Mean and standard deviation come from the exact transition law (scaled
     noncentral chi-square), as do the quantiles and ``P(v_t < near_zero)``.
+
+    The table carries no Euler risk *at* the low quantiles: at a variance
+    near zero the noise of an Euler step vanishes with the variance, so the
+    risk there reads 0 even when most of the mass sits near zero.  The risk
+    lives at intermediate levels; the worst case, its level and the mass up
+    to that level say where and how often.
     """
     if not isinstance(params, HestonParams):
         raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
@@ -87,14 +96,12 @@ def variance_report(
     cols["euler_neg_prob_at_v0"] = euler_negative_probability(
         p.v0, p.kappa, p.theta, p.vol_of_vol, dt
     )
-    low_levels = levels < 0.5
-    at_quantiles = euler_negative_probability(
-        table[:, low_levels], p.kappa, p.theta, p.vol_of_vol, dt
+    worst, level = euler_worst_case(p.kappa, p.theta, p.vol_of_vol, dt)
+    cols["euler_worst_case"] = worst
+    cols["euler_worst_level"] = level
+    cols["p_at_or_below_worst_level"] = (
+        np.ones(horizons.size) if np.isinf(level) else np.ravel(law.cdf(level))
     )
-    for j, q in enumerate(levels[low_levels]):
-        cols[f"euler_neg_prob_at_{_level_name(q)}"] = np.reshape(
-            at_quantiles, (-1, low_levels.sum())
-        )[:, j]
     cols["feller_ratio"] = ratio
     cols["regime"] = regime_label(ratio)
     notes = []

@@ -5,12 +5,21 @@ All functions broadcast over numpy arrays and return a float for scalar input.
 
 from __future__ import annotations
 
+from typing import NamedTuple
+
 import numpy as np
 from scipy.special import ndtr, ndtri
 
 from .validation import cir_parameters, scalar_or_array
 
-__all__ = ["euler_max_step", "euler_negative_probability", "feller_ratio", "regime_label"]
+__all__ = [
+    "EulerWorstCase",
+    "euler_max_step",
+    "euler_negative_probability",
+    "euler_worst_case",
+    "feller_ratio",
+    "regime_label",
+]
 
 
 def feller_ratio(kappa, theta, vol_of_vol):
@@ -163,3 +172,90 @@ def euler_max_step(v, kappa, theta, vol_of_vol, tolerance):
         root = 2.0 * v / denom
     breach = (v > 0) & (disc >= 0) & (denom > 0)
     return scalar_or_array(np.where(breach, root * root, np.inf))
+
+
+class EulerWorstCase(NamedTuple):
+    """The worst one-step negative probability over all variance levels, and where it sits."""
+
+    probability: float | np.ndarray
+    level: float | np.ndarray
+
+
+def euler_worst_case(kappa, theta, vol_of_vol, dt) -> EulerWorstCase:
+    """Worst case over all variance levels of the one-step Euler negative probability.
+
+    Parameters
+    ----------
+    kappa, theta, vol_of_vol : array_like
+        CIR parameters (per year, annualised variance, per sqrt(year)), > 0.
+    dt : array_like
+        Step size in years, > 0.
+
+    Returns
+    -------
+    EulerWorstCase
+        ``(probability, level)``: the largest :func:`euler_negative_probability`
+        over every starting variance ``v >= 0`` (in [0, 1]) and the variance
+        ``v*`` (annualised) where it is reached.  When ``kappa dt >= 1`` the
+        largest value is approached only as ``v`` grows without bound: the
+        probability is then the supremum (1/2 at ``kappa dt = 1``, 1 above)
+        and the level is ``inf``.
+
+    Notes
+    -----
+    Write ``a = kappa dt`` and ``b = kappa theta dt``.  One Euler step from
+    ``v > 0`` is negative with probability ``Phi(-g(v))``, where
+
+    .. math:: g(v) = \\frac{v(1 - a) + b}{\\sigma\\sqrt{v\\,\\Delta t}}
+              = \\frac{(1 - a)\\sqrt{v} + b / \\sqrt{v}}{\\sigma\\sqrt{\\Delta t}} .
+
+    ``Phi`` is increasing, so the worst level minimises ``g``.
+
+    * ``a < 1``: ``g`` is the sum of a rising and a falling term and tends to
+      ``+inf`` at both ends.  ``g'(v) = 0`` gives
+      ``(1 - a) / (2 sqrt v) = b / (2 v^{3/2})``, that is
+
+      .. math:: v^* = \\frac{b}{1 - a} = \\frac{\\kappa\\theta\\Delta t}{1 - \\kappa\\Delta t},
+
+      where the two terms are equal, so
+      ``g(v*) = 2 sqrt((1 - a) b) / (sigma sqrt(dt)) = 2 sqrt(kappa theta (1 - kappa dt)) / sigma``.
+      With the Feller ratio ``F = 2 kappa theta / sigma^2`` this is
+      ``sqrt(2 F (1 - kappa dt))``, and the worst case is
+
+      .. math:: p^* = \\Phi\\left(-\\sqrt{2F(1 - \\kappa\\Delta t)}\\right).
+
+      It depends on the step only through ``1 - kappa dt``: as ``dt -> 0`` it
+      tends to ``Phi(-sqrt(2F))``, not to zero.  Whatever the step, some
+      variance level carries that risk; the step only moves the level
+      (``v*`` shrinks with ``dt``) and so how often the process visits it,
+      which the exact law gives as ``P(v_t <= v*)``.
+    * ``a = 1``: ``g(v) = b / (sigma sqrt(v dt))`` falls to 0 as ``v`` grows:
+      the supremum is ``Phi(0) = 1/2``, not attained.
+    * ``a > 1``: the first term of ``g`` is negative and ``g -> -inf``: the
+      supremum is 1, not attained (the step overshoots the mean so far that
+      a high variance is more likely than not to come out negative).
+
+    References
+    ----------
+    Lord, R., Koekkoek, R. & van Dijk, D. (2010). A comparison of biased
+    simulation schemes for stochastic volatility models. Quantitative Finance
+    10(2), 177-194 (the Euler step).  Feller, W. (1951). Two singular
+    diffusion problems. Annals of Mathematics 54(1), 173-182.
+
+    Examples
+    --------
+    >>> from rootvar.core import euler_worst_case
+    >>> p, level = euler_worst_case(0.5, 0.04, 1.0, 1 / 252)
+    >>> round(p, 4), round(level * 1e5, 4)
+    (0.3888, 7.9523)
+    """
+    kappa, theta, vol_of_vol, dt = cir_parameters(kappa, theta, vol_of_vol, dt=(dt, ">0"))
+    a = kappa * dt
+    one_minus = 1.0 - a
+    with np.errstate(divide="ignore", invalid="ignore"):
+        level = kappa * theta * dt / one_minus
+        prob = ndtr(-2.0 * np.sqrt(kappa * theta * one_minus) / vol_of_vol)
+    below = one_minus > 0
+    prob = np.where(below, prob, np.where(one_minus == 0, 0.5, 1.0))
+    level = np.where(below, level, np.inf)
+    return EulerWorstCase(scalar_or_array(prob), scalar_or_array(level))

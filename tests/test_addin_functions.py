@@ -200,3 +200,125 @@ def test_pde_price_bad_input_is_marked_text(args, fragment):
     out = call("ROOTVAR_PDE_PRICE", *args)
     assert isinstance(out, str) and out.startswith(MARK) and "InputError" not in out
     assert fragment in out
+
+
+# ------------------------------------------------------------------ junk fuzz and cell rules
+
+_EXTREMES = [0.0, -1.0, 1e-12, 1e-300, 5e-324, 1e300, 1e308, math.inf, -math.inf, math.nan]
+_EXTREMES += [1e12, 1e15, 2.5, 1.0, 0.5, 100.0, 3.0, 7.0, 32.0, 2.0, 0.999999, 1e-6, 40.0]
+_PYTHON_NAMES = __import__("re").compile(
+    r"[A-Z][A-Za-z]*(Error|Exception|Warning)\b|Traceback|np\.float64|please report"
+)
+
+
+@st.composite
+def _junk_param_block(draw):
+    block = [list(row) for row in BLOCK]
+    block[draw(st.integers(0, 4))][1] = draw(st.sampled_from(_EXTREMES))
+    return draw(st.sampled_from([block, [r[1] for r in block], [[0.04, 0.5], [0.04], [1.0]]]))
+
+
+_cell_junk = st.one_of(
+    st.sampled_from(_EXTREMES),
+    st.sampled_from([None, True, False, "", " ", "#N/A", "call", "put", "qe", "1/252", "abc"]),
+    st.lists(
+        st.lists(st.sampled_from([*_EXTREMES, None, "x"]), min_size=1, max_size=2),
+        min_size=1,
+        max_size=3,
+    ),
+    st.floats(allow_nan=True, allow_infinity=True),
+)
+
+
+@settings(max_examples=400, deadline=None)
+@given(st.sampled_from(sorted(REGISTRY)), st.data())
+def test_junk_never_shows_a_python_exception_name(name, data):
+    # Every ROOTVAR_ function, every argument drawn from junk and extreme values, a parameter
+    # block with one value pushed to an extreme.  The answer is a value, a table or one
+    # marked line that names a rule: never a Python class name or a traceback.
+    import inspect
+
+    from rootvar.addin.functions import work_cap
+
+    params = list(inspect.signature(REGISTRY[name].func).parameters)
+    count = data.draw(st.integers(0, len(params)))
+    args = [
+        data.draw(_junk_param_block() if p == "params" else _cell_junk, label=p)
+        for p in params[:count]
+    ]
+    with work_cap(200_000):  # a junk call that happens to be valid stays quick
+        out = REGISTRY[name].func(*args)
+    texts = [out] if isinstance(out, str) else []
+    if isinstance(out, list):
+        texts = [c for row in out for c in (row if isinstance(row, list) else [row])
+                 if isinstance(c, str)]  # fmt: skip
+    for text in texts:
+        assert not _PYTHON_NAMES.search(text), text
+        if text.startswith(MARK):
+            assert "\n" not in text
+
+
+def test_missing_arguments_are_named():
+    out = call("ROOTVAR_FOURIER_PRICE", BLOCK, 100.0)
+    assert out == (
+        f"{MARK}ROOTVAR_FOURIER_PRICE needs params, spot, strike, maturity; missing strike, "
+        "maturity"
+    )
+
+
+@pytest.mark.parametrize(
+    "name, args, fragment",
+    [
+        # a huge maturity names the maturity, not an argument the user never gave
+        ("ROOTVAR_STEP_STUDY", (BLOCK, 100.0, 100.0, 1e12), "maturity must lie in [0.001, 100]"),
+        ("ROOTVAR_FOURIER_PRICE", (BLOCK, 0.5, 5e-324, 1.0), "strike / spot must lie in"),
+        # a horizon of 1e-12 would need a Poisson series of ~1e11 terms: refused up front
+        ("ROOTVAR_VAR_QUANTILE", (BLOCK, 1e-12, 0.01), "horizon is too short"),
+        ("ROOTVAR_VAR_TABLE", (BLOCK, [[1.0], [1e-12]]), "horizons is too short"),
+        ("ROOTVAR_FELLER", ([0.04, 1e15, 0.04, 1.0, -0.9],), "kappa must lie in"),
+        ("ROOTVAR_FELLER", ([[0.04, 0.5], [0.04], [1.0, -0.9]],), "rectangular range"),
+        ("ROOTVAR_MC_PRICE", (BLOCK, 100.0, 100.0, 1.0, 0, 0, [["call"], ["put"]]), "kind must"),
+        (
+            "ROOTVAR_MC_PRICE",
+            (BLOCK, 100.0, 100.0, 1.0, 0, 0, "call", "qe", 4, 1000, 1, [[True], [False]]),
+            "antithetic must be a single cell, got a range of 2 cells",
+        ),
+        (
+            "ROOTVAR_MC_PRICE",
+            (BLOCK, 100.0, 100.0, 1.0, 0, 0, "call", "qe", 4, 1000, 1e15),
+            "seed must be >= 0 and <= 999,999,999,999,999",
+        ),
+    ],
+)
+def test_cell_rules_are_named_and_refused_up_front(name, args, fragment):
+    out = call(name, *args)
+    assert isinstance(out, str) and out.startswith(MARK), out
+    assert fragment in out, out
+
+
+def test_all_blank_schemes_mean_the_default():
+    args = (BLOCK, 100.0, 100.0, 1.0, 0, 0, "call")
+    tail = ([[2.0], [4.0]], 1000.0, 5.0, 5.0)
+    blank = call("ROOTVAR_STEP_STUDY", *args, [[None], [""], ["  "]], *tail)
+    default = call("ROOTVAR_STEP_STUDY", *args, None, *tail)
+    assert blank == default
+    assert {row[0] for row in blank[1:-1]} == {"euler_full", "qe", "exact_variance"}
+
+
+def test_a_seed_read_back_from_a_cell_reproduces_the_row():
+    # A spreadsheet keeps 15 significant digits (common practice, no source): the largest
+    # seed a cell takes survives the round trip through the text a cell shows.
+    from rootvar.addin.functions import MAX_SEED
+    from rootvar.core.control import row_seed
+
+    for seed in (MAX_SEED, row_seed(20240601, "ALD-EQX"), row_seed(7, "QLN-FXB")):
+        assert seed <= MAX_SEED
+        shown = f"{float(seed):.15g}"  # what the cell displays and a user copies
+        assert int(float(shown)) == seed
+        clear_cache()
+        first = call("ROOTVAR_MC_PRICE", BLOCK, 100.0, 100.0, 1.0, 0, 0, "call", "qe", 4, 2000,
+                     float(seed))  # fmt: skip
+        clear_cache()
+        again = call("ROOTVAR_MC_PRICE", BLOCK, 100.0, 100.0, 1.0, 0, 0, "call", "qe", 4, 2000,
+                     float(shown))  # fmt: skip
+        assert first[:7] == again[:7]  # every row but the timing

@@ -273,7 +273,7 @@ def test_workers_below_one_is_an_input_error(tmp_path, capsys, value):
     with pytest.raises(SystemExit) as stop:
         main(["refresh", str(path), "--workers", value])
     assert stop.value.code == 2
-    assert "must be a whole number >= 1" in capsys.readouterr().err
+    assert ">= 1" in capsys.readouterr().err
 
 
 @pytest.mark.slow

@@ -128,12 +128,9 @@ def test_text_that_looks_like_a_formula_stays_text(tmp_path):
     [
         ({"A1": "=B1+1", "B1": "=A1*2"}, "reference cycle"),
         ({"A1": "=A1+1"}, "refers to itself"),
-        ({"A1": "=VLOOKUP(1,B1:C2,2)"}, "VLOOKUP is not supported"),
-        ({"A1": "=SUM(B:B)"}, "whole rows or columns"),
-        ({"A1": "=MyName*2"}, "not supported"),
     ],
 )
-def test_unsupported_formulas_and_cycles_are_clear_errors(tmp_path, formulas, fragment):
+def test_cycles_stop_the_run_and_write_nothing(tmp_path, formulas, fragment):
     def fill(ws, wb):
         for ref, text in formulas.items():
             ws[ref] = text
@@ -142,6 +139,93 @@ def test_unsupported_formulas_and_cycles_are_clear_errors(tmp_path, formulas, fr
     with pytest.raises(FormulaError, match=fragment):
         compute_workbook(path, tmp_path / "out.xlsx")
     assert not (tmp_path / "out.xlsx").exists()
+
+
+@pytest.mark.parametrize(
+    "formula, fragment",
+    [
+        ("=VLOOKUP(1,B1:C2,2)", "VLOOKUP is not supported"),
+        ("=SUM(B:B)", "whole rows or columns"),
+        ("=MyName*2", "not supported"),
+        ("=ROOTVAR_FELER(B1:B5)", "ROOTVAR_FELER is unknown"),
+    ],
+)
+def test_a_formula_outside_the_subset_is_one_cell_error(tmp_path, formula, fragment):
+    def fill(ws, wb):
+        ws["A1"] = formula
+        ws["C1"] = "=1+2"
+
+    path = _book(tmp_path, fill)
+    report = compute_workbook(path, tmp_path / "out.xlsx")
+    ws = load_workbook(tmp_path / "out.xlsx")["Main"]
+    assert ws["A1"].value.startswith(MARK) and fragment in ws["A1"].value
+    assert ws["C1"].value == 3
+    assert [cell for cell, _ in report.unsupported] == ["Main!A1"]
+
+
+def test_unsupported_and_misspelt_functions_leave_every_other_cell_computed(tmp_path, capsys):
+    from rootvar.addin.cli import main
+
+    def fill(ws, wb):
+        for i, v in enumerate((0.04, 1.5, 0.04, 0.5, -0.7), start=1):
+            ws[f"B{i}"] = v
+        ws["D1"] = "=ROOTVAR_FELLER(B1:B5)"
+        ws["D2"] = "=ROOTVAR_FELER(B1:B5)"  # misspelt
+        ws["D3"] = "=XLOOKUP(1,B1:B5,B1:B5)"  # not in the engine's subset
+        ws["D4"] = "=D1*2"
+        ws["D5"] = "=ROOTVAR_EULER_NEG_PROB(B1:B5,1/252)"
+
+    path = _book(tmp_path, fill)
+    before = _digest(path)
+    code = main(["compute", str(path), "--out", str(tmp_path / "out.xlsx")])
+    out = capsys.readouterr().out
+    assert code == 3  # some cells failed
+    assert "2 cells use functions" in out
+    assert "ROOTVAR_FELER is unknown" in out and "did you mean ROOTVAR_FELLER?" in out
+    assert "XLOOKUP is not supported" in out
+    ws = load_workbook(tmp_path / "out.xlsx")["Main"]
+    # 2 kappa theta / sigma^2 (Feller 1951) written out
+    assert ws["D1"].value == pytest.approx(2 * 1.5 * 0.04 / 0.25)
+    assert ws["D4"].value == pytest.approx(2 * ws["D1"].value)
+    assert 0 < ws["D5"].value < 1
+    assert _digest(path) == before
+
+
+def test_no_python_exception_name_reaches_a_cell(tmp_path):
+    def fill(ws, wb):
+        ws["A1"] = '="a"*2'
+        ws["A2"] = "=Missing!A1"
+        ws["A3"] = "=EXP(1000)"
+        ws["A4"] = "=LN(0)"
+
+    path = _book(tmp_path, fill)
+    compute_workbook(path, tmp_path / "out.xlsx")
+    ws = load_workbook(tmp_path / "out.xlsx")["Main"]
+    for ref in ("A1", "A2", "A3", "A4"):
+        text = ws[ref].value
+        assert text.startswith(MARK), (ref, text)
+        assert "Error" not in text and "Exception" not in text, (ref, text)
+
+
+def test_the_per_cell_monte_carlo_cap_is_lifted_headless_unless_asked(tmp_path):
+    from rootvar.addin.functions import MAX_PATH_STEPS
+
+    def fill(ws, wb):
+        for i, v in enumerate((0.04, 1.5, 0.04, 0.5, -0.7), start=1):
+            ws[f"B{i}"] = v
+        # 2,000,000 paths x 32 steps = 64,000,000 > the spreadsheet cap of 50,000,000
+        ws["D1"] = ArrayFormula("D1:E8", "=ROOTVAR_MC_PRICE(B1:B5,100,100,1,0,0,,,32,2000000)")
+
+    path = _book(tmp_path, fill)
+    capped = compute_workbook(path, tmp_path / "capped.xlsx", max_path_steps=MAX_PATH_STEPS)
+    text = load_workbook(tmp_path / "capped.xlsx")["Main"]["D1"].value
+    assert "exceeds the cap of 50,000,000" in text and capped.error_cells
+    # the message in a spreadsheet program says where the run goes instead, and that is true:
+    from rootvar.addin.functions import call
+
+    block = [[0.04], [1.5], [0.04], [0.5], [-0.7]]
+    in_sheet = call("ROOTVAR_MC_PRICE", block, 100, 100, 1, 0, 0, None, None, 32, 2_000_000)
+    assert "rootvar compute runs it headless without this cap" in in_sheet
 
 
 def test_refuses_to_overwrite_the_template(tmp_path):
@@ -170,3 +254,21 @@ def test_finite_difference_barrier_through_a_workbook(tmp_path):
     )
     assert ws["A1"].value == "price" and ws["B1"].value == direct.price
     assert ws["A3"].value == "status" and ws["B3"].value == direct.status
+
+
+@pytest.mark.slow
+def test_headless_compute_runs_a_cell_over_the_spreadsheet_cap(tmp_path):
+    # 1,562,600 paths x 32 steps = 50,003,200 path-steps: just over the spreadsheet cap.
+    def fill(ws, wb):
+        for i, v in enumerate((0.04, 1.5, 0.04, 0.5, -0.7), start=1):
+            ws[f"B{i}"] = v
+        ws["D1"] = ArrayFormula("D1:E8", '=ROOTVAR_MC_PRICE(B1:B5,100,100,1,0,0,,"qe",32,1562600)')
+
+    path = _book(tmp_path, fill)
+    report = compute_workbook(path, tmp_path / "out.xlsx")
+    assert not report.error_cells
+    ws = load_workbook(tmp_path / "out.xlsx")["Main"]
+    # Fourier (COS, certified) as the yardstick; bound the standard error too
+    ref = heston_price(HestonParams(0.04, 1.5, 0.04, 0.5, -0.7), 100, 100, 1.0)
+    assert ws["E2"].value < 0.02
+    assert abs(ws["E1"].value - ref) < 4 * ws["E2"].value + 0.01  # QE bias at 32 steps is small

@@ -24,7 +24,7 @@ def test_one_row_per_horizon_with_law_values(hard):
     assert row["p_below_near_zero"] == pytest.approx(law.cdf(1e-3), rel=1e-12)
     assert row["feller_ratio"] == pytest.approx(0.04)
     assert row["regime"] == "severe breach"
-    assert "euler_neg_prob_at_q1%" in t.columns and "euler_neg_prob_at_q99%" not in t.columns
+    assert not any(c.startswith("euler_neg_prob_at_q") for c in t.columns)
     assert t.attrs["regime"] == "severe breach"
 
 
@@ -63,3 +63,28 @@ def test_bad_input_names_the_argument(hard, kwargs, name):
 def test_params_must_be_a_parameter_set():
     with pytest.raises(InputError, match="params"):
         variance_report((0.04, 1, 0.04, 1, 0), [1.0])
+
+
+def test_worst_case_columns_say_where_the_risk_lives(hard):
+    # The misleading case of the old table: near v = 0 the step's noise vanishes, so the risk
+    # at the low quantiles read 0 while most of the mass sits near zero.  The worst case
+    # (closed form, checked against a scan in test_variance) and P(v_t <= v*) from the exact
+    # law (scipy.stats.ncx2 through cir_transition) show it.
+    from rootvar.core import euler_worst_case
+
+    dt = 1 / 252
+    t = variance_report(hard, [0.25, 1.0], dt=dt)
+    prob, level = euler_worst_case(0.5, 0.04, 1.0, dt)
+    assert (t["euler_worst_case"] == prob).all() and (t["euler_worst_level"] == level).all()
+    for h in (0.25, 1.0):
+        law = cir_transition(0.04, 0.5, 0.04, 1.0, h)
+        assert t.loc[h, "p_at_or_below_worst_level"] == pytest.approx(law.cdf(level), rel=1e-12)
+    assert prob > 0.3 and t.loc[1.0, "p_at_or_below_worst_level"] > 0.5
+    assert t.loc[1.0, "euler_neg_prob_at_v0"] < 1e-3
+
+
+def test_worst_level_at_infinity_gives_all_the_mass(hard):
+    t = variance_report(hard, [1.0], dt=2.5)  # kappa dt = 1.25 >= 1
+    assert t.loc[1.0, "euler_worst_case"] == 1.0
+    assert math.isinf(t.loc[1.0, "euler_worst_level"])
+    assert t.loc[1.0, "p_at_or_below_worst_level"] == 1.0

@@ -175,3 +175,87 @@ def test_bad_input_names_the_argument(call, name):
 def test_junk_kappa_raises_input_error_naming_it(junk):
     with pytest.raises(InputError, match="kappa"):
         feller_ratio(junk, 0.04, 1.0)
+
+
+# --------------------------------------------------------------- worst case of one Euler step
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    kappa=st.floats(0.05, 10.0),
+    theta=st.floats(1e-3, 0.5),
+    vol_of_vol=st.floats(0.05, 3.0),
+    dt=st.floats(1e-4, 0.5),
+)
+def test_worst_case_matches_a_fine_scan_over_variance_levels(kappa, theta, vol_of_vol, dt):
+    # Brute force: the one-step probability (itself checked against scipy.stats.norm above)
+    # evaluated on a fine log grid of v around the claimed peak, then refined by a golden-
+    # section search on the best bracket; the closed form must be the maximum and sit there.
+    from scipy.optimize import minimize_scalar
+
+    from rootvar.core import euler_worst_case
+
+    if kappa * dt >= 0.99:
+        return  # handled by the separate test below
+    prob, level = euler_worst_case(kappa, theta, vol_of_vol, dt)
+    grid = level * np.logspace(-6, 6, 4001)
+    scan = euler_negative_probability(grid, kappa, theta, vol_of_vol, dt)
+    i = int(np.argmax(scan))
+    lo, hi = np.log(grid[max(i - 1, 0)]), np.log(grid[min(i + 1, grid.size - 1)])
+    best = minimize_scalar(
+        lambda x: -euler_negative_probability(math.exp(x), kappa, theta, vol_of_vol, dt),
+        bounds=(lo, hi),
+        method="bounded",
+        options={"xatol": 1e-10},
+    )
+    assert scan.max() <= prob * (1 + 1e-12) + 1e-300
+    assert -best.fun == pytest.approx(prob, rel=1e-8, abs=1e-300)
+    if prob > 1e-200:  # where the peak is not flat to a double, the argmax is the level
+        assert math.exp(best.x) == pytest.approx(level, rel=1e-3)
+
+
+def test_worst_case_closed_form_in_feller_ratio():
+    # Phi(-sqrt(2 F (1 - kappa dt))) with scipy.stats.norm, scipy 1.x, and v* written out.
+    from rootvar.core import euler_worst_case
+
+    k, th, s, dt = 0.5, 0.04, 1.0, 1 / 252
+    f = 2 * k * th / s**2
+    prob, level = euler_worst_case(k, th, s, dt)
+    assert prob == pytest.approx(stats.norm.cdf(-math.sqrt(2 * f * (1 - k * dt))), rel=1e-13)
+    assert level == pytest.approx(k * th * dt / (1 - k * dt), rel=1e-14)
+    # the risk at that level is the worst case itself (identity with the one-step formula)
+    assert euler_negative_probability(level, k, th, s, dt) == pytest.approx(prob, rel=1e-12)
+
+
+def test_worst_case_does_not_vanish_as_the_step_shrinks():
+    # As dt -> 0 the closed form falls to Phi(-sqrt(2F)) (scipy.stats.norm), not to 0: a
+    # smaller step only moves the riskiest level towards zero.
+    from rootvar.core import euler_worst_case
+
+    k, th, s = 0.5, 0.04, 1.0
+    limit = stats.norm.cdf(-math.sqrt(4 * k * th / s**2))
+    probs = [euler_worst_case(k, th, s, dt).probability for dt in (1 / 12, 1 / 252, 1e-6)]
+    assert probs[0] > probs[1] > probs[2] >= limit
+    assert probs[2] == pytest.approx(limit, rel=1e-6)
+
+
+@pytest.mark.parametrize("kdt, sup", [(1.0, 0.5), (1.5, 1.0), (40.0, 1.0)])
+def test_worst_case_with_kappa_dt_at_least_one_is_a_supremum_at_infinity(kdt, sup):
+    # kappa dt = 1: g(v) = b / (sigma sqrt(v dt)) -> 0, Phi(0) = 1/2; above 1, g -> -inf.
+    from rootvar.core import euler_worst_case
+
+    k, th, s = 2.0, 0.04, 0.5
+    dt = kdt / k
+    prob, level = euler_worst_case(k, th, s, dt)
+    assert prob == sup and math.isinf(level)
+    far = euler_negative_probability(1e12, k, th, s, dt)
+    assert far == pytest.approx(sup, abs=1e-3) and far <= sup
+
+
+def test_worst_case_refuses_bad_input_naming_it():
+    from rootvar.core import euler_worst_case
+
+    with pytest.raises(InputError, match="dt must be > 0"):
+        euler_worst_case(1.0, 0.04, 0.5, 0.0)
+    with pytest.raises(InputError, match="vol_of_vol"):
+        euler_worst_case(1.0, 0.04, -0.5, 0.01)

@@ -1,6 +1,7 @@
 """MC-versus-Fourier verdicts and the step-size study."""
 
 import dataclasses
+import math
 
 import numpy as np
 import pytest
@@ -76,10 +77,15 @@ def test_three_states_and_paths_to_settle():
         FELLER_OK, 100, 100.0, 1.0, tolerance_price=0.05, mc_result=_with(run, ref + 0.03, 0.02)
     )
     assert open_.verdict == UNDECIDED
-    # with that many paths the band 3 se shrinks to the gap |0.03 - 0.05|
+    # planning rule: at that many paths (z + 1.645) standard errors fit the tolerance
+    # (1.645 = Phi^{-1}(0.95), scipy.stats.norm), whatever the observed difference
     shrunk = 0.02 * np.sqrt(run.paths / open_.paths_to_settle)
-    assert 3 * shrunk == pytest.approx(0.02, rel=1e-3)
-    assert "paths would settle it" in open_.reason
+    assert (3 + 1.6448536269514722) * shrunk == pytest.approx(0.05, rel=1e-3)
+    other = compare_mc_fourier(
+        FELLER_OK, 100, 100.0, 1.0, tolerance_price=0.05, mc_result=_with(run, ref - 0.06, 0.02)
+    )
+    assert other.verdict == UNDECIDED and other.paths_to_settle == open_.paths_to_settle
+    assert "a rerun decides in 90% of cases" in open_.reason
 
 
 def test_basis_point_tolerance_uses_vega():
@@ -190,3 +196,83 @@ def test_every_scheme_is_consistent_at_fine_steps_when_feller_holds(scheme):
         tolerance_bp=10.0,
     )
     assert list(c.verdict) == [CONSISTENT, CONSISTENT]
+
+
+# ------------------------------------------------------------- planning figure and defaults
+
+
+from rootvar.core import DEFAULT_PATHS, planning_paths  # noqa: E402
+
+#: Fang & Oosterlee (2008), SIAM J. Sci. Comput. 31(2), Heston test case.
+FO = HestonParams(v0=0.0175, kappa=1.5768, theta=0.0398, vol_of_vol=0.5751, rho=-0.5711)
+
+
+def _check(paths, seed, shift=0.0, strike=100.0):
+    run = mc_price(FO, 100, strike, 1.0, 0, 0, "call", "qe", 32, paths, seed, True, True)
+    c = compare_mc_fourier(FO, 100, strike, 1.0, mc_result=run)
+    if shift:
+        moved = dataclasses.replace(run, price=run.price + shift * c.tolerance_price)
+        c = compare_mc_fourier(FO, 100, strike, 1.0, mc_result=moved)
+    return c
+
+
+def test_planning_rule_written_out():
+    # (z + Phi^{-1}((1 + share) / 2))^2 (noise per path / tol)^2, Phi^{-1} from scipy.stats.norm
+    from scipy.stats import norm
+
+    need = planning_paths(10_000, 0.02, 0.05, z=3.0, share=0.9)
+    expected = 10_000 * ((3.0 + norm.ppf(0.95)) * 0.02 / 0.05) ** 2
+    assert need == 2 * math.ceil(math.ceil(expected) / 2) and need % 2 == 0
+
+
+def test_planning_figure_is_stable_over_seeds():
+    # The noise per path is estimated to a few per cent from 10,000 paths, so the figure
+    # varies within a factor 1.25 over seeds (stated in README); the observed difference
+    # plays no part.
+    figures = []
+    for seed in range(1, 31):
+        c = _check(10_000, seed)
+        figures.append(
+            planning_paths(10_000, c.mc.std_error, c.tolerance_price)
+            if c.verdict != UNDECIDED
+            else c.paths_to_settle
+        )
+    assert max(figures) / min(figures) <= 1.25
+
+
+@pytest.mark.slow
+def test_rerun_at_the_planning_figure_decides_in_most_cases():
+    # Undecided small runs (10,000 paths) on the FO case, rerun at the figure with a new seed:
+    # a scheme without bias (QE, conditional; its bias here is ~0.1 bp, printed by
+    # `python -m benchmarks verdict`) must come out consistent in >= 80% (design 90%), and
+    # one biased by twice the tolerance must come out biased in >= 80% (design >= 95%).
+    for shift, want in ((0.0, CONSISTENT), (2.0, BIASED)):
+        decided, undecided = 0, 0
+        for seed in range(1, 400):
+            small = _check(2_000, seed, shift)
+            if small.verdict != UNDECIDED:
+                continue
+            undecided += 1
+            rerun = _check(int(small.paths_to_settle), 10_000 + seed, shift)
+            decided += rerun.verdict == want
+            if undecided == 40:
+                break
+        assert undecided == 40
+        assert decided / undecided >= 0.8, (shift, decided, undecided)
+
+
+@pytest.mark.slow
+def test_false_alarms_and_power_at_the_defaults_reduced_size():
+    # Reduced size (30 seeds, FO case at the money; the full sweep of 1,000 seeds over the
+    # FO case and the demo desk is in README): no false alarm, consistent in >= 80%, and a
+    # scheme biased by twice the tolerance is called biased in >= 90%.
+    assert DEFAULT_PATHS == 200_000
+    counts = {CONSISTENT: 0, UNDECIDED: 0, BIASED: 0}
+    power = 0
+    for seed in range(1, 31):
+        c = _check(DEFAULT_PATHS, seed)
+        counts[str(c.verdict)] += 1
+        power += _check(DEFAULT_PATHS, seed, 2.0 if seed % 2 else -2.0).verdict == BIASED
+    assert counts[BIASED] == 0
+    assert counts[CONSISTENT] >= 24
+    assert power >= 27
