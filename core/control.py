@@ -23,7 +23,13 @@ from .mc_schemes import SCHEMES
 from .monte_carlo import mc_price
 from .params import HestonParams
 from .validation import InputError
-from .variance import euler_max_step, euler_negative_probability, feller_ratio, regime_label
+from .variance import (
+    euler_max_step,
+    euler_negative_probability,
+    euler_worst_case,
+    feller_ratio,
+    regime_label,
+)
 from .verdict import BIASED, CONSISTENT, SCHEME_COST, UNDECIDED, compare_mc_fourier
 
 __all__ = ["CHECK_FAILED", "ControlSettings", "ModelSpec", "check_model", "row_seed"]
@@ -173,6 +179,9 @@ def check_model(spec: ModelSpec, settings: ControlSettings) -> list[dict]:
     -------
     list of dict
         Keys: model_id, underlying, feller_ratio, regime, negative_probability,
+        worst_probability and worst_level (the worst one-step Euler risk over
+        all variance levels and the level v* where it sits, at the production
+        step), prob_below_worst_level (exact-law P(v_T <= v*) at the maturity),
         safe_step_years, maturity, strike, fourier_price, mc_price, std_error,
         diff_price, diff_vol_bp, z_score, verdict, quantiles (dict level ->
         variance at the maturity), recommendation, flags (list of str), seed.
@@ -182,6 +191,7 @@ def check_model(spec: ModelSpec, settings: ControlSettings) -> list[dict]:
     dt = 1.0 / settings.steps_per_year
     ratio = feller_ratio(p.kappa, p.theta, p.vol_of_vol)
     neg = euler_negative_probability(p.v0, p.kappa, p.theta, p.vol_of_vol, dt)
+    worst_prob, worst_level = euler_worst_case(p.kappa, p.theta, p.vol_of_vol, dt)
     safe = euler_max_step(p.v0, p.kappa, p.theta, p.vol_of_vol, settings.max_negative_probability)
     model_flags = []
     if ratio < settings.feller_warning:
@@ -195,6 +205,8 @@ def check_model(spec: ModelSpec, settings: ControlSettings) -> list[dict]:
         strikes = np.array(spec.moneyness, dtype=float) * spec.spot
         law = cir_transition(p.v0, p.kappa, p.theta, p.vol_of_vol, t)
         quant = {q: float(law.ppf(q)) for q in settings.quantiles}
+        # how often the variance visits the worst level: P(v_t <= v*) under the exact law
+        below_worst = float(law.cdf(worst_level)) if math.isfinite(worst_level) else 1.0
         run = mc_price(
             p,
             spec.spot,
@@ -257,6 +269,9 @@ def check_model(spec: ModelSpec, settings: ControlSettings) -> list[dict]:
                     "feller_ratio": ratio,
                     "regime": regime_label(ratio),
                     "negative_probability": neg,
+                    "worst_probability": float(worst_prob),
+                    "worst_level": float(worst_level),
+                    "prob_below_worst_level": below_worst,
                     "safe_step_years": safe,
                     "maturity": float(t),
                     "strike": float(k),

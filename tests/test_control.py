@@ -332,3 +332,19 @@ def test_recommendation_is_the_step_studys_cheapest_consistent_cell():
         assert text.startswith("none consistent")
     else:
         assert text == f"{best['scheme']} at {best['steps']:.0f} steps a year"
+
+
+def test_rows_carry_the_worst_case_of_one_euler_step_and_how_often_it_is_visited():
+    from rootvar.core import cir_transition, euler_worst_case
+
+    params = HestonParams(0.04, 0.5, 0.04, 1.0, -0.9)
+    spec = ModelSpec("T1", "test", 100.0, 0.0, 0.0, params, (0.5, 2.0), (1.0,))
+    rows = check_model(spec, ControlSettings(paths=4096, steps_per_year=8))
+    worst, level = euler_worst_case(0.5, 0.04, 1.0, 1 / 8)
+    for r in rows:
+        assert r["worst_probability"] == worst and r["worst_level"] == level
+        # exact law of the variance at the maturity (scipy ncx2 behind cir_transition)
+        law = cir_transition(0.04, 0.5, 0.04, 1.0, r["maturity"])
+        assert r["prob_below_worst_level"] == pytest.approx(law.cdf(level), rel=1e-12)
+    # the worst case is the risk that matters: far above the risk at v0 here
+    assert rows[0]["worst_probability"] > rows[0]["negative_probability"]

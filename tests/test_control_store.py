@@ -158,7 +158,8 @@ def _old_history_book(tmp_path):
     """A book refreshed by a rootvar without a store: History in the sheet only."""
     path = make_book(tmp_path, models=1)
     wb = load_workbook(path)
-    ws = wb["History"]
+    del wb["History"]
+    ws = wb.create_sheet("History")
     old_header = [
         "as-of", "run time (UTC)", "rootvar version", "model id", "underlying", "status",
         "Feller ratio", "regime", "negative-step prob.", "largest safe step (years)", "maturity",
@@ -246,3 +247,29 @@ def test_history_of_a_book_never_refreshed(tmp_path, capsys):
     assert "holds no history yet" in capsys.readouterr().err
     Workbook().save(tmp_path / "plain.xlsx")
     assert main(["history", str(tmp_path / "plain.xlsx")]) == 2
+
+
+def test_a_version_1_store_is_migrated_and_keeps_its_rows(store_url):
+    """Schema 1 (before the worst-case columns) opens under schema 2 with its rows intact."""
+    from rootvar.addin.control import store as store_module
+
+    old = HistoryStore(store_url)
+    with old.engine.begin() as conn:
+        store_module._migrate_0_to_1(conn)
+        old._set_version(conn, 1)
+        meta = sa.MetaData()
+        store_module._tables(meta, version=1)
+        conn.execute(
+            sa.insert(meta.tables["control_rows"]),
+            [{"book": "b", "position": 0, "as_of": "2026-11-30", "model_id": "OLD", "seed": 7}],
+        )
+    assert HistoryStore(store_url).schema_version() == 1
+    store = HistoryStore(store_url)
+    assert store.ensure_schema() == SCHEMA_VERSION == 2
+    assert store.schema_version() == 2
+    store.record("b", "2026-12-01", [_row("NEW", "2026-12-01", worst_probability=0.3)], "t", "v")
+    rows = store.read(since="2026-11-30")
+    assert [(r["model_id"], r["worst_probability"]) for r in rows] == [
+        ("OLD", None),
+        ("NEW", 0.3),
+    ]

@@ -51,6 +51,7 @@ _FORMATS = {
     "date": "yyyy-mm-dd",
     "datetime": "yyyy-mm-dd hh:mm",
     "ratio": "0.000",
+    "variance": "0.000E+00",
     "prob": "0.00%",
     "years": "0.0000",
     "days": "0.0",
@@ -65,12 +66,16 @@ _TINY_PROB_FORMAT = "0.0E+00"  # probabilities below 0.01% would read 0.00%
 
 @dataclass(frozen=True)
 class Field:
-    """One column of the results: store key, header, kind of number, width."""
+    """One column of the results: store key, header, kind of number, width.
+
+    ``since`` is the history-store schema version that added the column.
+    """
 
     key: str
     header: str
     kind: str
     width: float
+    since: int = 1
 
 
 FIELDS = [
@@ -85,6 +90,15 @@ FIELDS = [
     Field(
         "negative_probability", "Euler negative-step probability at v0, production step", "prob", 13
     ),
+    Field(
+        "worst_probability",
+        "Euler worst-case negative-step probability, production step",
+        "prob",
+        13,
+        since=2,
+    ),
+    Field("worst_level", "variance level of the worst case (v*)", "variance", 11, since=2),
+    Field("prob_below_worst_level", "P(variance <= v*) at maturity", "prob", 11, since=2),
     Field("safe_step_years", "largest safe Euler step (years)", "years", 10),
     Field("safe_step_days", "largest safe Euler step (trading days)", "days", 10),
     Field("maturity", "maturity (years)", "years", 9),
@@ -161,6 +175,9 @@ def result_rows(models, results, settings: ControlSettings, as_of: str, run_time
                     "feller_ratio": r["feller_ratio"],
                     "regime": r["regime"],
                     "negative_probability": r["negative_probability"],
+                    "worst_probability": r["worst_probability"],
+                    "worst_level": r["worst_level"],
+                    "prob_below_worst_level": r["prob_below_worst_level"],
                     "safe_step_years": safe,
                     "safe_step_days": safe * 252 if math.isfinite(safe) else math.inf,
                     "maturity": r["maturity"],
@@ -195,7 +212,7 @@ def _cell_value(key, value):
             return dt.datetime.fromisoformat(value).replace(tzinfo=None)
         except ValueError:
             return value
-    if key in ("safe_step_years", "safe_step_days") and isinstance(value, float):
+    if key in ("safe_step_years", "safe_step_days", "worst_level") and isinstance(value, float):
         return "unbounded" if math.isinf(value) else value
     return value
 

@@ -74,12 +74,17 @@ def rows_from_history_sheet(ws) -> list[dict]:
     values = list(ws.iter_rows(values_only=True))
     if not values:
         return []
-    columns = {j: _BY_HEADER.get(_norm(h)) for j, h in enumerate(values[0])}
+    columns, seen = {}, set()
+    for j, h in enumerate(values[0]):
+        key = _BY_HEADER.get(_norm(h))
+        if key and key not in seen:  # the first column of a name wins
+            columns[j] = key
+            seen.add(key)
     if "as_of" not in columns.values() or "model_id" not in columns.values():
         return []
     out = []
     for raw in values[1:]:
-        row = {key: raw[j] for j, key in columns.items() if key and j < len(raw)}
+        row = {key: raw[j] for j, key in columns.items() if j < len(raw)}
         as_of = _as_date(row.get("as_of"))
         if as_of is None:
             continue  # notes and chart data below the table

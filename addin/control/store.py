@@ -34,7 +34,7 @@ from .results import FIELDS
 __all__ = ["SCHEMA_VERSION", "HistoryStore", "StoreError", "default_store_url"]
 
 #: Version of the schema this rootvar writes.
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 #: Rows per INSERT statement (executemany keeps memory flat for big books).
 _BATCH = 2_000
 
@@ -42,6 +42,7 @@ _SQL_TYPES = {
     "date": sa.String(10),
     "datetime": sa.String(32),
     "ratio": sa.Float,
+    "variance": sa.Float,
     "prob": sa.Float,
     "years": sa.Float,
     "days": sa.Float,
@@ -70,7 +71,8 @@ def _normalise_url(url: str) -> str:
     return url
 
 
-def _tables(meta: sa.MetaData):
+def _tables(meta: sa.MetaData, version: int = SCHEMA_VERSION):
+    """The tables as they stand at schema ``version``."""
     sa.Table(
         "rootvar_meta",
         meta,
@@ -92,7 +94,8 @@ def _tables(meta: sa.MetaData):
         sa.Column("position", sa.Integer, nullable=False),
     ]
     for f in FIELDS:
-        cols.append(sa.Column(f.key, _SQL_TYPES[f.kind], nullable=True))
+        if f.since <= version:
+            cols.append(sa.Column(f.key, _SQL_TYPES[f.kind], nullable=True))
     rows = sa.Table("control_rows", meta, *cols)
     sa.Index("control_rows_by_date", rows.c.book, rows.c.as_of)
     sa.Index("control_rows_by_model", rows.c.book, rows.c.model_id)
@@ -100,12 +103,23 @@ def _tables(meta: sa.MetaData):
 
 def _migrate_0_to_1(conn) -> None:
     meta = sa.MetaData()
-    _tables(meta)
+    _tables(meta, version=1)
     meta.create_all(conn)
 
 
-#: version reached -> step that takes the schema there from the one before.
-_MIGRATIONS = {1: _migrate_0_to_1}
+def _migrate_1_to_2(conn) -> None:
+    """Version 2 adds the worst case of one Euler step and how often it is visited."""
+    for f in FIELDS:
+        if f.since == 2:
+            kind = _SQL_TYPES[f.kind]
+            kind = kind() if isinstance(kind, type) else kind
+            ddl = kind.compile(dialect=conn.dialect)
+            conn.execute(sa.text(f"ALTER TABLE control_rows ADD COLUMN {f.key} {ddl}"))
+
+
+#: version reached -> step that takes the schema there from the one before.  Never edit
+#: a step once released: add the next one.
+_MIGRATIONS = {1: _migrate_0_to_1, 2: _migrate_1_to_2}
 
 
 class HistoryStore:
