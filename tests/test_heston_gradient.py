@@ -86,8 +86,9 @@ def test_gradient_matches_central_differences_on_its_grid(
 ):
     # common practice, no source: five-point central differences (relative step 1e-3,
     # truncation error O(h^4)) of the price on the same fixed grid agree to 1e-6 relative
-    # to the largest entry of the strip's gradient in that parameter (floor 1e-3 currency
-    # per unit, where the differences themselves carry some 1e-9 of rounding)
+    # to the largest entry of the strip's gradient in that parameter (floor 1e-2 currency
+    # per unit: the differences themselves carry some 3e-9 of rounding from the COS sums,
+    # measured at vol_of_vol 0.1, maturity 3, where that gradient is 2.6e-4)
     p = HestonParams(v0, kappa, theta, vol_of_vol, rho)
     strike = 100.0 * np.exp(np.array(moneyness) * np.sqrt(theta * maturity))
     t = np.full(strike.shape, maturity)
@@ -100,7 +101,7 @@ def test_gradient_matches_central_differences_on_its_grid(
             return pricer.evaluate(dataclasses.replace(p, **{name: getattr(p, name) + step}))[0]
 
         fd = (-price(2 * h) + 8 * price(h) - 8 * price(-h) + price(-2 * h)) / (12 * h)
-        scale = max(np.max(np.abs(grad[:, j])), 1e-3)
+        scale = max(np.max(np.abs(grad[:, j])), 1e-2)
         assert np.max(np.abs(fd - grad[:, j])) <= 1e-6 * scale, name
 
 
