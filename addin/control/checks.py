@@ -73,8 +73,13 @@ def _duration(seconds: float) -> str:
     return f"{h}h{m:02d}m{s:02d}s" if h else f"{m}m{s:02d}s"
 
 
-def _worker_start() -> None:
-    """Set up a pool worker: Ctrl-C is the parent's to handle, and a worker dies with it."""
+def _worker_start(threads: int) -> None:
+    """Set up a pool worker: its share of the cores, Ctrl-C is the parent's, it dies with it."""
+    # The kernels run Monte Carlo blocks on as many threads as numba allows; N worker
+    # processes with all cores' threads each would fight over the cores.
+    from rootvar.core.compiled import numba
+
+    numba.set_num_threads(max(1, min(threads, numba.config.NUMBA_NUM_THREADS)))
     # Ctrl-C reaches the whole process group; only the parent decides what stops
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     if sys.platform.startswith("linux"):
@@ -101,7 +106,8 @@ def run_checks(specs, settings, workers: int, scheduler: str | None, progress: P
             progress.step(spec, results[-1][1])
         return results
     results: list = [None] * len(specs)
-    pool = ProcessPoolExecutor(max_workers=workers, initializer=_worker_start)
+    share = max(1, (os.cpu_count() or 1) // workers)
+    pool = ProcessPoolExecutor(max_workers=workers, initializer=_worker_start, initargs=(share,))
     try:
         futures = {pool.submit(check_one, spec, settings): i for i, spec in enumerate(specs)}
         for fut in as_completed(futures):
