@@ -75,5 +75,10 @@ def test_refresh_help_lists_the_exit_codes(capsys):
     with pytest.raises(SystemExit):
         main(["refresh", "--help"])
     text = capsys.readouterr().out
-    for line in ("0  all clear", "1  breaches", "2  input or file error", "3  some rows failed"):
+    for line in (
+        "0  all clear",
+        "1  breaches",
+        "2  input, file, lock or store error",
+        "3  some rows failed",
+    ):
         assert line in text
