@@ -11,12 +11,13 @@ from .calibration import Calibration, calibrate, calibration_tradeoff
 from .cir_law import TINY_VARIANCE, cir_stationary, cir_transition, cir_transition_shapes
 from .fourier import FourierDetails, heston_implied_vol, heston_price, heston_price_details
 from .fourier_check import FourierCheckError, lewis_call_price
+from .fourier_exotics import FourierConvergenceError, forward_start_price, geometric_asian_price
 from .heston_gradient import heston_price_gradient
 from .mc_schemes import SCHEMES
 from .monte_carlo import BLOCK, DEFAULT_SEED, MCResult, expected_negative_step_fraction, mc_price
 from .params import HestonParams
 from .pde import PDEResult, pde_price
-from .products import BarrierOption, EuropeanOption
+from .products import AsianOption, BarrierOption, EuropeanOption, ForwardStartOption
 from .quotes import QuoteSet, StaticArbitrageWarning, read_quotes
 from .report import DEFAULT_QUANTILES, variance_report
 from .validation import InputError
@@ -46,11 +47,14 @@ __all__ = [
     "SCHEMES",
     "TINY_VARIANCE",
     "UNDECIDED",
+    "AsianOption",
     "BarrierOption",
     "Calibration",
     "Comparison",
     "EuropeanOption",
+    "ForwardStartOption",
     "FourierCheckError",
+    "FourierConvergenceError",
     "FourierDetails",
     "HestonParams",
     "InputError",
@@ -70,6 +74,8 @@ __all__ = [
     "euler_negative_probability",
     "expected_negative_step_fraction",
     "feller_ratio",
+    "forward_start_price",
+    "geometric_asian_price",
     "heston_implied_vol",
     "heston_price",
     "heston_price_details",
