@@ -17,13 +17,21 @@ by more than ``RANGE_TOL x spot``.  A fixed range or a fixed integration limit
 is not enough: on Feller-breaking sets the characteristic function decays
 only exponentially, slowly, and a limit of 100 in the Fourier integral gives
 a geometric Asian call a quarter below its value (issue 15).  When the check
-cannot be met within ``MAX_TERMS`` terms the pricers raise
+cannot be met within ``MAX_TERMS`` terms (a law with a sharp spike, e.g. a
+short forward start after a long start on a Feller-breaking set, where the
+variance at the start is often near 0) the price is taken by Lewis's
+integral with adaptive quadrature instead, as the European falls back to its
+check method; if that reports a miss too, the pricers raise
 :class:`FourierConvergenceError` instead of returning a number.
 """
 
 from __future__ import annotations
 
+import itertools
+import warnings
+
 import numpy as np
+from scipy import integrate
 
 from .fourier import CF_CHUNK, MAX_TERMS, RANGE_TOL, SERIES_TOL, _CosSeries
 from .joint_cf import joint_log_mgf
@@ -94,7 +102,7 @@ def _cutoff(log_cf, bound_scale, tol):
     return float(u[above[-1] + 1]) if above.size else float(u[0])
 
 
-def _certified_put(log_cf, log_moneyness, strike, spot, what):
+def _cos_put(log_cf, log_moneyness, strike, spot, what):
     """``E[K (1 - e^{x + R})^+]`` by a certified COS series.
 
     Same rules as ``rootvar.core.fourier._cos_puts_certified`` for one strike:
@@ -157,6 +165,71 @@ def _certified_put(log_cf, log_moneyness, strike, spot, what):
     )
 
 
+def _quad_put(log_cf, log_moneyness, strike, mean, what):
+    """``E[K (1 - e^{x + R})^+]`` by Lewis's integral and adaptive quadrature.
+
+    The fallback when the COS series cannot be certified, as for Europeans
+    (``rootvar.core.fourier_check``): with ``U = K e^{x + R}`` and
+    ``E[e^R] = mean``,
+
+    .. math:: E[(U - K)^+] = K e^x \\mathrm{mean} - \\frac{K e^{x/2}}{\\pi}
+              \\int_0^\\infty \\mathrm{Re}\\big[e^{iux}\\varphi_R(u - i/2)\\big]
+              \\frac{du}{u^2 + 1/4},
+
+    integrated by QUADPACK (its oscillatory rule when ``|x|`` times the
+    limit is large) up to the frequency past which the integrand stays
+    below 1e-17; any QUADPACK warning raises :class:`FourierConvergenceError`.
+    The put follows by parity.
+    """
+    x = log_moneyness
+    u = np.geomspace(1.0, 1e7, 600)
+    size = np.exp(log_cf(u - 0.5j).real) / (u * u + 0.25)
+    above = np.nonzero(~(size < 1e-17))[0]
+    if above.size and above[-1] == u.size - 1:
+        raise FourierConvergenceError(f"the {what} integrand has not decayed by frequency 1e7")
+    upper = float(u[above[-1] + 1]) if above.size else 1.0
+
+    def g(v):
+        return np.exp(log_cf(np.array([v - 0.5j]))[0]) / (v * v + 0.25)
+
+    opts = {"epsabs": 1e-14, "epsrel": 1e-13, "limit": 2000}
+    # one piece per decade: a spiky law's integrand decays slowly over many
+    # decades, more than one adaptive subdivision budget resolves at once
+    edges = np.concatenate([[0.0], np.geomspace(1.0, upper, max(2, int(np.log10(upper)) + 2))])
+    val = 0.0
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", integrate.IntegrationWarning)
+        try:
+            for lo, hi in itertools.pairwise(edges):
+                if abs(x) * hi < 1.0:
+                    val += integrate.quad(
+                        lambda v: (np.exp(1j * v * x) * g(v)).real, lo, hi, **opts
+                    )[0]
+                else:
+                    re = integrate.quad(lambda v: g(v).real, lo, hi, weight="cos", wvar=x, **opts)
+                    im = integrate.quad(lambda v: g(v).imag, lo, hi, weight="sin", wvar=x, **opts)
+                    val += re[0] - im[0]
+        except integrate.IntegrationWarning as exc:
+            raise FourierConvergenceError(
+                f"the {what} adaptive Fourier integral did not converge: {exc}"
+            ) from exc
+    call = strike * np.exp(x) * mean - strike * np.exp(0.5 * x) / np.pi * val
+    return float(call - (strike * np.exp(x) * mean - strike))
+
+
+def _certified_put(log_cf, log_moneyness, strike, mean, spot, what):
+    """The certified COS put, or the adaptive-quadrature one when COS cannot certify."""
+    try:
+        return _cos_put(log_cf, log_moneyness, strike, spot, what)
+    except FourierConvergenceError as cos_error:
+        try:
+            return _quad_put(log_cf, log_moneyness, strike, mean, what)
+        except FourierConvergenceError as quad_error:
+            raise FourierConvergenceError(
+                f"{cos_error}; the adaptive-quadrature fallback failed too: {quad_error}"
+            ) from quad_error
+
+
 def _from_put(kind, put, mean, strike, discount):
     """Discounted call or put from the undiscounted put and ``E[underlying] = mean``.
 
@@ -188,14 +261,16 @@ def geometric_asian_price(params, spot, product, rate=0.0, div_yield=0.0):
     -------
     float
         Price in the currency of ``spot``, certified to about
-        ``RANGE_TOL x spot`` (1e-10 x spot).
+        ``RANGE_TOL x spot`` (1e-10 x spot) by the COS series, or to
+        QUADPACK's tolerance by the fallback (module notes).
 
     Raises
     ------
     InputError
         Bad arguments, or an arithmetic-average product (no closed form).
     FourierConvergenceError
-        When the series cannot be certified (see the module notes).
+        When neither the series nor the fallback can be certified (module
+        notes).
 
     Notes
     -----
@@ -228,15 +303,29 @@ def geometric_asian_price(params, spot, product, rate=0.0, div_yield=0.0):
     drift = rate - div_yield
 
     def log_cf(u):
-        weights = np.repeat((1j * np.asarray(u, dtype=float) / n)[:, None], n, axis=1)
+        weights = np.repeat((1j * np.asarray(u, dtype=complex) / n)[:, None], n, axis=1)
         return joint_log_mgf(weights, dates, params, drift)
 
     # E[G] / S_0 = E[e^Y]: the joint moment generating function at weights 1/N
     mean_y = joint_log_mgf(np.full((1, n), 1.0 / n), dates, params, drift)[0].real
     mean = spot * float(np.exp(mean_y))
     strike = product.strike
-    put = _certified_put(log_cf, np.log(spot / strike), strike, spot, "geometric Asian")
+    put = _certified_put(
+        log_cf, np.log(spot / strike), strike, mean / spot, spot, "geometric Asian"
+    )
     return _from_put(product.kind, put, mean, strike, np.exp(-rate * product.maturity))
+
+
+def _forward_start_log_cf(params, t0, big_t, drift):
+    """``u -> log E~[e^{iuR}]``, ``R = ln(S_T / S_t0)`` under the ``S_t0`` measure."""
+    dates = np.array([t0, big_t]) if t0 > 0 else np.array([big_t])
+
+    def log_cf(u):
+        iu = 1j * np.asarray(u, dtype=complex)
+        weights = np.stack([1.0 - iu, iu], axis=1) if t0 > 0 else iu[:, None]
+        return joint_log_mgf(weights, dates, params, drift) - drift * t0
+
+    return log_cf
 
 
 def forward_start_price(params, spot, product, rate=0.0, div_yield=0.0):
@@ -256,14 +345,16 @@ def forward_start_price(params, spot, product, rate=0.0, div_yield=0.0):
     -------
     float
         Price in the currency of ``spot``, certified to about
-        ``RANGE_TOL x spot`` (1e-10 x spot).
+        ``RANGE_TOL x spot`` (1e-10 x spot) by the COS series, or to
+        QUADPACK's tolerance by the fallback (module notes).
 
     Raises
     ------
     InputError
         Bad arguments.
     FourierConvergenceError
-        When the series cannot be certified (see the module notes).
+        When neither the series nor the fallback can be certified (module
+        notes).
 
     Notes
     -----
@@ -305,15 +396,9 @@ def forward_start_price(params, spot, product, rate=0.0, div_yield=0.0):
         raise InputError(f"product must be a ForwardStartOption, got {type(product).__name__}")
     drift = rate - div_yield
     t0, big_t, share = product.start, product.maturity, product.strike_share
-    dates = np.array([t0, big_t]) if t0 > 0 else np.array([big_t])
-
-    def log_cf(u):
-        iu = 1j * np.asarray(u, dtype=float)
-        weights = np.stack([1.0 - iu, iu], axis=1) if t0 > 0 else iu[:, None]
-        return joint_log_mgf(weights, dates, params, drift) - drift * t0
-
+    log_cf = _forward_start_log_cf(params, t0, big_t, drift)
     # unit spot at t0: the series prices E~[k (1 - e^{R - ln k})^+]
-    put = _certified_put(log_cf, -np.log(share), share, 1.0, "forward-start")
+    mean = np.exp(drift * (big_t - t0))  # E~[e^R]
+    put = _certified_put(log_cf, -np.log(share), share, mean, 1.0, "forward-start")
     scale = spot * np.exp(drift * t0)  # E[S_t0]: the numeraire's value
-    mean = np.exp(drift * (big_t - t0))
     return scale * _from_put(product.kind, put, mean, share, np.exp(-rate * big_t))

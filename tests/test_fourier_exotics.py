@@ -4,6 +4,7 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
+import rootvar.core.fourier_exotics as fourier_exotics
 from rootvar.core import (
     AsianOption,
     ForwardStartOption,
@@ -365,3 +366,31 @@ def test_uncertifiable_series_raises_instead_of_returning_a_number():
     fwd = ForwardStartOption("call", 0.5, 0.5 + 1e-13, 1.0)
     with pytest.raises(FourierConvergenceError, match="cannot be certified"):
         forward_start_price(FO, 100.0, fwd)
+
+
+@pytest.mark.slow
+def test_spiky_forward_start_falls_back_to_quadrature_and_stays_right():
+    # A short forward start after a long start on a strongly Feller-breaking
+    # set (ratio 0.003): the variance at the start is below 1e-6 with
+    # probability 0.65, the law of the return has a sharp spike, and the COS
+    # series would need more than 2^19 terms.  The price then comes from
+    # Lewis's integral by adaptive quadrature; reference as in
+    # test_forward_start_is_the_european_price_mixed_over_the_start_variance
+    # (Kruse & Nögel 2005 representation; scipy.integrate.quad over the
+    # quantiles of scipy.stats.ncx2, scipy 1.17; rootvar.core.heston_price).
+    p = HestonParams(0.2472, 0.06308, 0.02628, 1.0834, -0.0452)
+    t0, big_t, share = 1.0, 1.02, 1.0
+    cf = fourier_exotics._forward_start_log_cf(p, t0, big_t, 0.0)
+    with pytest.raises(FourierConvergenceError, match="within 524288 terms"):
+        fourier_exotics._cos_put(cf, -np.log(share), share, 1.0, "forward-start")
+    kappa_s = p.kappa - p.rho * p.vol_of_vol
+    law = cir_transition(p.v0, kappa_s, p.kappa * p.theta / kappa_s, p.vol_of_vol, t0)
+    assert law.cdf(1e-6) > 0.6
+
+    def european(q):
+        pv = HestonParams(float(law.ppf(q)), p.kappa, p.theta, p.vol_of_vol, p.rho)
+        return heston_price(pv, 1.0, share, big_t - t0)
+
+    ref = 100.0 * integrate.quad(european, 0.0, 1.0, epsabs=1e-9, limit=200)[0]
+    price = forward_start_price(p, 100.0, ForwardStartOption("call", t0, big_t, share))
+    assert price == pytest.approx(ref, abs=1e-7)
