@@ -2,6 +2,8 @@
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import integrate, stats
 
 import rootvar.core.fourier_exotics as fourier_exotics
@@ -394,3 +396,28 @@ def test_spiky_forward_start_falls_back_to_quadrature_and_stays_right():
     ref = 100.0 * integrate.quad(european, 0.0, 1.0, epsabs=1e-9, limit=200)[0]
     price = forward_start_price(p, 100.0, ForwardStartOption("call", t0, big_t, share))
     assert price == pytest.approx(ref, abs=1e-7)
+
+
+@settings(max_examples=15, deadline=None)
+@given(
+    v0=st.floats(0.005, 0.3),
+    kappa=st.floats(0.2, 4.0),
+    theta=st.floats(0.01, 0.2),
+    vol_of_vol=st.floats(0.1, 1.5),
+    rho=st.floats(-0.95, 0.5),
+    fixings=st.integers(1, 12),
+)
+def test_geometric_asian_call_is_bounded_decreasing_and_convex_in_strike(
+    v0, kappa, theta, vol_of_vol, rho, fixings
+):
+    # No-arbitrage in strike (common practice, no source): 0 <= C <= DF E[G],
+    # C decreasing and convex in K; with zero rates E[G] <= S (Jensen).
+    p = HestonParams(v0, kappa, theta, vol_of_vol, rho)
+    dates = np.arange(1, fixings + 1) / 12.0
+    strikes = (85.0, 100.0, 115.0)
+    calls = [
+        geometric_asian_price(p, 100.0, AsianOption("call", k, dates, "geometric")) for k in strikes
+    ]
+    assert all(0.0 <= c <= 100.0 + 1e-9 for c in calls)
+    assert calls[0] >= calls[1] - 1e-9 >= calls[2] - 2e-9
+    assert calls[0] - 2.0 * calls[1] + calls[2] >= -1e-8
