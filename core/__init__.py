@@ -12,12 +12,13 @@ from .cir_law import TINY_VARIANCE, cir_stationary, cir_transition, cir_transiti
 from .compiled import CompileNotice, compile_kernels, kernels_cached
 from .fourier import FourierDetails, heston_implied_vol, heston_price, heston_price_details
 from .fourier_check import FourierCheckError, lewis_call_price
+from .fourier_exotics import FourierConvergenceError, forward_start_price, geometric_asian_price
 from .heston_gradient import heston_price_gradient
 from .mc_schemes import SCHEMES
 from .monte_carlo import BLOCK, DEFAULT_SEED, MCResult, expected_negative_step_fraction, mc_price
 from .params import HestonParams
 from .pde import PDEResult, pde_price
-from .products import BarrierOption, EuropeanOption
+from .products import AsianOption, BarrierOption, EuropeanOption, ForwardStartOption
 from .quotes import QuoteSet, StaticArbitrageWarning, read_quotes
 from .report import DEFAULT_QUANTILES, variance_report
 from .validation import InputError
@@ -61,13 +62,16 @@ __all__ = [
     "SCHEMES",
     "TINY_VARIANCE",
     "UNDECIDED",
+    "AsianOption",
     "BarrierOption",
     "Calibration",
     "Comparison",
     "CompileNotice",
     "EulerWorstCase",
     "EuropeanOption",
+    "ForwardStartOption",
     "FourierCheckError",
+    "FourierConvergenceError",
     "FourierDetails",
     "HestonParams",
     "InputError",
@@ -89,6 +93,8 @@ __all__ = [
     "euler_worst_case",
     "expected_negative_step_fraction",
     "feller_ratio",
+    "forward_start_price",
+    "geometric_asian_price",
     "heston_implied_vol",
     "heston_price",
     "heston_price_details",

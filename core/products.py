@@ -3,8 +3,8 @@
 A product is plain data: what is paid, on what, and when.  Pricers (the
 finite-difference solver of :mod:`rootvar.core.pde`, and later Monte Carlo
 exotics) read these fields; they hold no pricing code.  New contracts (Asian,
-forward-start, digital) are added as further frozen dataclasses beside these
-two, each validating itself on construction.
+forward-start, digital) are added as further frozen dataclasses beside these,
+each validating itself on construction.
 """
 
 from __future__ import annotations
@@ -15,11 +15,21 @@ import numpy as np
 
 from .validation import InputError, as_float_array, check_choice
 
-__all__ = ["DIRECTIONS", "KINDS", "KNOCKS", "BarrierOption", "EuropeanOption"]
+__all__ = [
+    "AVERAGES",
+    "DIRECTIONS",
+    "KINDS",
+    "KNOCKS",
+    "AsianOption",
+    "BarrierOption",
+    "EuropeanOption",
+    "ForwardStartOption",
+]
 
 KINDS = ("call", "put")
 DIRECTIONS = ("up", "down")
 KNOCKS = ("out", "in")
+AVERAGES = ("arithmetic", "geometric")
 
 
 def _positive(name: str, value) -> float:
@@ -146,3 +156,101 @@ class BarrierOption:
     def payoff(self, spot_at_expiry):
         """The vanilla payoff, for the path that was never hit (knock-out)."""
         return _vanilla_payoff(self.kind, self.strike, spot_at_expiry)
+
+
+@dataclass(frozen=True)
+class AsianOption:
+    """A discrete average-price call or put.
+
+    Pays ``max(A - K, 0)`` (call) or ``max(K - A, 0)`` (put) at the last
+    fixing date, ``A`` the average of the spot over the fixing dates.
+
+    Parameters
+    ----------
+    kind : {"call", "put"}
+    strike : float
+        Strike, > 0, in the currency of the spot.
+    fixings : sequence of float
+        Fixing dates in years from today, each > 0; sorted and stored as a
+        tuple, repeats refused.  The last one is the expiry.
+    average : {"arithmetic", "geometric"}
+        ``"arithmetic"``: ``A = (1/N) sum S_j``; ``"geometric"``:
+        ``A = (prod S_j)^(1/N)``.
+    """
+
+    kind: str
+    strike: float
+    fixings: tuple
+    average: str = "arithmetic"
+
+    def __post_init__(self) -> None:
+        check_choice("kind", self.kind, KINDS)
+        check_choice("average", self.average, AVERAGES)
+        object.__setattr__(self, "strike", _positive("strike", self.strike))
+        dates = np.ravel(as_float_array("fixings", self.fixings, ">0"))
+        if dates.size == 0:
+            raise InputError("fixings must hold at least one date, got an empty list")
+        dates = np.sort(dates)
+        if np.any(np.diff(dates) <= 0):
+            twice = dates[1:][np.diff(dates) <= 0][0]
+            raise InputError(f"fixings must differ, got {float(twice)!r} twice")
+        object.__setattr__(self, "fixings", tuple(float(d) for d in dates))
+
+    @property
+    def maturity(self) -> float:
+        """The last fixing date (years), when the option pays."""
+        return self.fixings[-1]
+
+    def average_of(self, spots_at_fixings):
+        """The average over the last axis (one column per fixing date)."""
+        s = np.asarray(spots_at_fixings, dtype=float)
+        if self.average == "geometric":
+            return np.exp(np.mean(np.log(s), axis=-1))
+        return np.mean(s, axis=-1)
+
+    def payoff(self, spots_at_fixings):
+        """The payoff on the spots at the fixing dates (last axis)."""
+        return _vanilla_payoff(self.kind, self.strike, self.average_of(spots_at_fixings))
+
+
+@dataclass(frozen=True)
+class ForwardStartOption:
+    """A call or put whose strike is set at a future date as a share of the spot then.
+
+    Pays ``max(S_T - k S_start, 0)`` (call) or ``max(k S_start - S_T, 0)``
+    (put) at ``maturity``.
+
+    Parameters
+    ----------
+    kind : {"call", "put"}
+    start : float
+        Date the strike is set, in years from today, >= 0 (0 is a European
+        with strike ``k S_0``).
+    maturity : float
+        Expiry in years, > start.
+    strike_share : float
+        ``k`` > 0: the strike as a share of the spot at ``start`` (1.0 at the
+        money).
+    """
+
+    kind: str
+    start: float
+    maturity: float
+    strike_share: float = 1.0
+
+    def __post_init__(self) -> None:
+        check_choice("kind", self.kind, KINDS)
+        start = as_float_array("start", self.start, ">=0")
+        if start.ndim != 0:
+            raise InputError(f"start must be a single number, got shape {start.shape}")
+        object.__setattr__(self, "start", float(start))
+        object.__setattr__(self, "maturity", _positive("maturity", self.maturity))
+        object.__setattr__(self, "strike_share", _positive("strike_share", self.strike_share))
+        if self.maturity <= self.start:
+            raise InputError(f"maturity must be > start={self.start!r}, got {self.maturity!r}")
+
+    def payoff(self, spot_at_start, spot_at_expiry):
+        """The payoff given the spot at the start date and at expiry."""
+        strike = self.strike_share * np.asarray(spot_at_start, dtype=float)
+        s = np.asarray(spot_at_expiry, dtype=float)
+        return np.maximum(s - strike, 0.0) if self.kind == "call" else np.maximum(strike - s, 0.0)

@@ -1,11 +1,18 @@
 """Option products: validation, stored form, payoffs."""
 
 import dataclasses
+import re
 
 import numpy as np
 import pytest
 
-from rootvar.core import BarrierOption, EuropeanOption, InputError
+from rootvar.core import (
+    AsianOption,
+    BarrierOption,
+    EuropeanOption,
+    ForwardStartOption,
+    InputError,
+)
 
 
 def test_european_payoffs():
@@ -65,3 +72,60 @@ def test_bad_barrier(kwargs, fragment):
         InputError, match=fragment.replace("(", r"\(").replace(")", r"\)").replace("[", r"\[")
     ):
         BarrierOption(**args)
+
+
+def test_asian_fixings_are_sorted_and_the_averages_are_the_textbook_ones():
+    # Arithmetic and geometric means (common practice, no source).
+    a = AsianOption("call", 100, [1.0, 0.25, 0.5], "geometric")
+    assert a.fixings == (0.25, 0.5, 1.0) and a.maturity == 1.0
+    spots = np.array([[50.0, 100.0, 200.0], [100.0, 100.0, 100.0]])
+    np.testing.assert_allclose(a.average_of(spots), [100.0, 100.0])
+    np.testing.assert_allclose(a.payoff(spots), [0.0, 0.0], atol=1e-12)
+    b = AsianOption("put", 150, [0.5, 1.0, 2.0])
+    assert b.average == "arithmetic"
+    np.testing.assert_allclose(b.payoff(spots), [150.0 - 350.0 / 3.0, 50.0])
+
+
+def test_forward_start_payoff_sets_the_strike_at_the_start():
+    f = ForwardStartOption("call", 0.5, 1.0, 1.1)
+    np.testing.assert_allclose(f.payoff([100.0, 50.0], [120.0, 50.0]), [10.0, 0.0])
+    g = ForwardStartOption("put", 0, 1.0)
+    assert g.start == 0.0 and g.strike_share == 1.0
+    np.testing.assert_allclose(g.payoff([100.0, 50.0], [120.0, 40.0]), [0.0, 10.0])
+
+
+@pytest.mark.parametrize(
+    "kwargs, fragment",
+    [
+        ({"kind": "digital"}, "kind must be one of 'call', 'put', got 'digital'"),
+        ({"strike": 0}, "strike must be > 0, got 0.0"),
+        ({"fixings": []}, "fixings must hold at least one date"),
+        ({"fixings": [0.0, 1.0]}, "fixings must be > 0, got 0.0"),
+        ({"fixings": [0.5, 1.0, 0.5]}, "fixings must differ, got 0.5 twice"),
+        ({"fixings": [0.5, np.nan]}, "fixings must be finite, got nan"),
+        ({"average": "harmonic"}, "average must be one of 'arithmetic', 'geometric'"),
+    ],
+)
+def test_bad_asian(kwargs, fragment):
+    args = dict(kind="call", strike=100, fixings=[0.5, 1.0], average="geometric")
+    args.update(kwargs)
+    with pytest.raises(InputError, match=re.escape(fragment)):
+        AsianOption(**args)
+
+
+@pytest.mark.parametrize(
+    "kwargs, fragment",
+    [
+        ({"kind": "straddle"}, "kind must be one of"),
+        ({"start": -0.1}, "start must be >= 0, got -0.1"),
+        ({"maturity": 0.5}, "maturity must be > start=0.5, got 0.5"),
+        ({"maturity": -1}, "maturity must be > 0, got -1.0"),
+        ({"strike_share": 0}, "strike_share must be > 0, got 0.0"),
+        ({"start": [0.1, 0.2]}, "start must be a single number"),
+    ],
+)
+def test_bad_forward_start(kwargs, fragment):
+    args = dict(kind="call", start=0.5, maturity=1.0, strike_share=1.0)
+    args.update(kwargs)
+    with pytest.raises(InputError, match=re.escape(fragment)):
+        ForwardStartOption(**args)
