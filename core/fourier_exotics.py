@@ -33,11 +33,14 @@ import warnings
 import numpy as np
 from scipy import integrate
 
-from .fourier import CF_CHUNK, MAX_TERMS, RANGE_TOL, SERIES_TOL, _CosSeries
+from .fourier import MAX_TERMS, RANGE_TOL, SERIES_TOL, _CosSeries
 from .joint_cf import joint_log_mgf
 from .params import HestonParams
 from .products import AsianOption, ForwardStartOption
 from .validation import InputError, as_float_array
+
+#: Frequencies per evaluation of the joint characteristic function (bounds temporaries).
+CF_CHUNK = 1 << 13
 
 __all__ = ["FourierConvergenceError", "forward_start_price", "geometric_asian_price"]
 

@@ -9,7 +9,30 @@ from __future__ import annotations
 
 import numpy as np
 
-from .heston_cf import _principal_log, _principal_sqrt
+
+def _principal_sqrt(z):
+    """Principal square root (``Re >= 0``) of an array, from real operations.
+
+    The half-sum form has no cancellation for either sign of ``Re z``; the
+    same formula as the compiled kernel's ``principal_sqrt``, for arrays.
+    Valid for ``1e-150 < |z| < 1e150``.
+    """
+    re, im = z.real, z.imag
+    t = np.sqrt(0.5 * (np.abs(re) + np.sqrt(re * re + im * im)))
+    half = np.divide(0.5 * im, t, out=np.zeros_like(t), where=t > 0)
+    right = re >= 0
+    return np.where(right, t, np.abs(half)) + 1j * np.where(right, half, np.copysign(t, im))
+
+
+def _principal_log(z):
+    """Principal logarithm (argument in ``(-pi, pi]``) of an array, from real operations.
+
+    numpy's complex log takes a slow extra-precision path near ``|z| = 1``,
+    where these arguments live; this form stays within ~1e-16 absolute.
+    """
+    re, im = z.real, z.imag
+    return 0.5 * np.log(re * re + im * im) + 1j * np.arctan2(im, re)
+
 
 __all__ = ["affine_step", "joint_log_mgf"]
 
