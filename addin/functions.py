@@ -624,6 +624,12 @@ def ROOTVAR_MC_CHECK(
     )
 
 
+#: Paths per grid cell of a step study in a cell: with antithetic draws and the compiled
+#: kernels, every demo model's default study ends with a recommendation in about 1.2 s
+#: (2 cores); 10,000 paths left every one of them "none consistent".
+STUDY_PATHS = 200_000
+
+
 @sheet_function(
     "table: header row, one row per scheme and step count, then the recommendation",
     params=PARAMS_DOC,
@@ -635,10 +641,10 @@ def ROOTVAR_MC_CHECK(
     kind="call or put (empty: call)",
     schemes="scheme names, comma-separated or a range (empty: euler_full, qe, exact_variance)",
     steps_list="range of step counts (empty: 2, 4, 8, 16, 32)",
-    paths="paths per cell of the grid (empty: 10000)",
+    paths=f"paths per cell of the grid (empty: {STUDY_PATHS})",
     seed=f"random seed (empty: {DEFAULT_SEED})",
     tolerance_bp=f"tolerance in implied-vol basis points (empty: {DEFAULT_TOLERANCE_BP:g})",
-    antithetic="TRUE to mirror the draws (empty: FALSE)",
+    antithetic="TRUE to mirror the draws (empty: TRUE)",
 )
 def ROOTVAR_STEP_STUDY(
     params,
@@ -665,10 +671,10 @@ def ROOTVAR_STEP_STUDY(
         if steps_list is None
         else [to_int("steps_list", n, 1, 1, 100_000) for n in to_numbers("steps_list", steps_list)]
     )
-    n_paths = to_int("paths", paths, 10_000, 2, 10_000_000)
+    n_paths = to_int("paths", paths, STUDY_PATHS, 2, 10_000_000)
     sd = to_int("seed", seed, DEFAULT_SEED, 0, MAX_SEED)
     tol = to_number("tolerance_bp", tolerance_bp, ">0", default=DEFAULT_TOLERANCE_BP)
-    anti = to_bool("antithetic", antithetic, False)
+    anti = to_bool("antithetic", antithetic, True)
     if anti and n_paths % 2:
         raise CellError(f"paths must be even with antithetic TRUE, got {n_paths}")
     _check_work(n_paths, sum(grid) * len(names))

@@ -322,3 +322,22 @@ def test_a_seed_read_back_from_a_cell_reproduces_the_row():
         again = call("ROOTVAR_MC_PRICE", BLOCK, 100.0, 100.0, 1.0, 0, 0, "call", "qe", 4, 2000,
                      float(shown))  # fmt: skip
         assert first[:7] == again[:7]  # every row but the timing
+
+
+@pytest.mark.slow
+def test_default_step_study_recommends_a_scheme_on_every_demo_model():
+    # the flagship answer with every default: a scheme and step, not "none consistent"
+    from rootvar.addin.demo_desk import demo_models
+
+    for m in demo_models():
+        p = m.params
+        block = [["v0", p.v0], ["kappa", p.kappa], ["theta", p.theta]]
+        block += [["vol_of_vol", p.vol_of_vol], ["rho", p.rho]]
+        rows = call("ROOTVAR_STEP_STUDY", block, m.spot, m.spot, 1.0)
+        assert rows[-1][0] == "recommendation"
+        text = rows[-1][1]
+        assert text.split(" at ")[0] in ("euler_full", "qe", "exact_variance"), (m.model_id, text)
+        # the recommended cell itself is consistent in the table
+        scheme, steps = text.split(" at ")[0], int(text.split(" at ")[1].split()[0])
+        cell = [r for r in rows[1:-1] if r[0] == scheme and r[1] == steps]
+        assert cell and "consistent" in cell[0]
