@@ -65,6 +65,27 @@ def _array(ws, top_left: str, rows: int, cols: int, text: str) -> None:
     ws[top_left] = ArrayFormula(f"{top_left}:{last}", text)
 
 
+#: Numbers in label/value blocks: up to four decimals, no trailing noise digits.
+_SHORT = "0.0###"
+
+
+def _formats(ws, top_left: str, rows: int, cols: int, fmt: str) -> None:
+    """Give a block of (spill) cells one number format."""
+    first = ws[top_left]
+    for r in range(first.row, first.row + rows):
+        for c in range(first.column, first.column + cols):
+            ws.cell(row=r, column=c).number_format = fmt
+
+
+def _print_setup(ws) -> None:
+    """Landscape, one page wide, as the other sheets of the workbook."""
+    ws.page_setup.orientation = "landscape"
+    ws.page_setup.paperSize = ws.PAPERSIZE_A4
+    ws.page_setup.fitToWidth = 1
+    ws.page_setup.fitToHeight = 0
+    ws.sheet_properties.pageSetUpPr.fitToPage = True
+
+
 def add_calibration_sheet(wb) -> None:
     """Append the smile-fit sheet to an openpyxl workbook."""
     m = _model()
@@ -87,9 +108,11 @@ def add_calibration_sheet(wb) -> None:
     ws.cell(row=top - 1, column=1, value="market quotes").font = _BOLD
     for j, name in enumerate(("maturity", "strike", "implied_vol")):
         ws.cell(row=top, column=1 + j, value=name).font = _BOLD
+    quote_formats = ("0.0000", "#,##0", "0.00%")  # years, strike, implied vol
     for i, row in enumerate(quotes, start=top + 1):
         for j, value in enumerate(row):
-            ws.cell(row=i, column=1 + j, value=value).fill = _INPUT
+            cell = ws.cell(row=i, column=1 + j, value=value)
+            cell.fill, cell.number_format = _INPUT, quote_formats[j]
     last = top + len(quotes)
     q = f"$A${top}:$C${last}"
     market = "$B$4,$B$5,$B$6"
@@ -125,6 +148,17 @@ def add_calibration_sheet(wb) -> None:
     ws.cell(row=res_top - 1, column=12, value="residuals, constrained fit").font = _BOLD
     _array(ws, f"E{res_top}", n + 1, 6, f'=ROOTVAR_CALIBRATION_RESIDUALS({q},{market},"free",$B$8)')
     _array(ws, f"L{res_top}", n + 1, 6, f"=ROOTVAR_CALIBRATION_RESIDUALS({q},{market},$B$7,$B$8)")
+    # spilled values take the formats of the cells they land in: no raw 15-digit numbers
+    _formats(ws, "F5", _STATS_ROWS, 1, _SHORT)
+    _formats(ws, "I5", _STATS_ROWS, 1, _SHORT)
+    _formats(ws, f"E{trade_top + 1}", 16, 4, _SHORT)
+    residual_formats = ("0.0000", "#,##0", "0.00%", "0.00%", "+0.0;-0.0;0.0", "0.00")
+    for first in ("E", "L"):
+        col = ws[f"{first}{res_top}"].column
+        for j, fmt in enumerate(residual_formats):
+            letter = ws.cell(row=1, column=col + j).column_letter
+            _formats(ws, f"{letter}{res_top + 1}", n, 1, fmt)
+    _print_setup(ws)
     _charts(ws, res_top, len(STRIKE_SD))
     for col, width in {"A": 28, "B": 12, "E": 24, "F": 14, "H": 24, "I": 14, "K": 36}.items():
         ws.column_dimensions[col].width = width
