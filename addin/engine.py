@@ -25,8 +25,6 @@ from __future__ import annotations
 
 import difflib
 import math
-import os
-import tempfile
 import zipfile
 from dataclasses import dataclass, field
 from graphlib import CycleError, TopologicalSorter
@@ -40,6 +38,7 @@ from openpyxl.utils.cell import get_column_letter, range_boundaries
 from openpyxl.worksheet.formula import ArrayFormula
 
 from .cells import MARK, error_text
+from .files import SaveError, file_problem, save_atomic
 from .functions import REGISTRY, work_cap
 
 __all__ = [
@@ -489,12 +488,9 @@ def evaluate_workbook(wb, max_path_steps=None) -> tuple[dict, ComputeReport]:
 
 def _open(template: Path):
     """The workbook, or one WorkbookFileError naming the file and the cause."""
-    if not template.exists():
-        raise WorkbookFileError(f"{template}: no such file")
-    if template.is_dir():
-        raise WorkbookFileError(f"{template}: is a folder, not a workbook")
-    if not os.access(template, os.R_OK):
-        raise WorkbookFileError(f"{template}: cannot be read (permission denied)")
+    problem = file_problem(template)
+    if problem:
+        raise WorkbookFileError(f"{template}: {problem}")
     if not zipfile.is_zipfile(template):
         raise WorkbookFileError(f"{template}: not a workbook (an .xlsx or .xlsm file is a zip)")
     try:
@@ -554,18 +550,9 @@ def compute_workbook(template, out=None, max_path_steps=None) -> ComputeReport:
                 if isinstance(cell.value, ArrayFormula):
                     cell.value = None
     try:
-        fd, tmp = tempfile.mkstemp(prefix=".rootvar-", suffix=out.suffix, dir=out.parent)
-    except OSError as exc:
-        raise WorkbookFileError(f"{out}: cannot be written ({exc.strerror or exc})") from exc
-    os.close(fd)
-    try:
-        wb.save(tmp)
-        os.replace(tmp, out)
-    except OSError as exc:
-        raise WorkbookFileError(f"{out}: cannot be written ({exc.strerror or exc})") from exc
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
+        save_atomic(wb.save, out, keep_backup=False)
+    except SaveError as exc:
+        raise WorkbookFileError(f"{out}: cannot be written ({exc})") from exc
     report.output = out
     return report
 

@@ -238,18 +238,26 @@ def check_model(spec: ModelSpec, settings: ControlSettings) -> list[dict]:
         fourier = np.atleast_1d(cmp_.fourier_price)
         mc_prices = np.atleast_1d(run.price)
         reasons = [""] * len(strikes)
-        for i, k in enumerate(strikes):
-            for what, price in (("Fourier", fourier[i]), ("Monte Carlo", mc_prices[i])):
-                iv, why = implied_vol_reason(
-                    price, spec.spot, k, t, spec.rate, spec.div_yield, "call"
-                )
+        for what, prices in (("Fourier", fourier), ("Monte Carlo", mc_prices)):
+            ivs, whys = implied_vol_reason(
+                prices, spec.spot, strikes, t, spec.rate, spec.div_yield, "call"
+            )
+            for i, k in enumerate(strikes):
+                if reasons[i]:
+                    continue  # the Fourier price already had no usable vol
                 why = _unformed_reason(
-                    float(price), float(iv), str(why), spec.spot, k, t, spec.rate, spec.div_yield
+                    float(prices[i]),
+                    float(ivs[i]),
+                    str(whys[i]),
+                    spec.spot,
+                    k,
+                    t,
+                    spec.rate,
+                    spec.div_yield,
                 )
                 if why:
-                    reasons[i] = f"no vol-bp difference: {what} price {float(price):.6g}: {why}"
+                    reasons[i] = f"no vol-bp difference: {what} price {float(prices[i]):.6g}: {why}"
                     verdicts[i], diff_bp[i] = CHECK_FAILED, math.nan
-                    break
         worst = int(np.argmax(np.where(verdicts == BIASED, np.abs(diff_bp), -1.0)))
         recommendation = ""
         if (verdicts == BIASED).any():

@@ -146,11 +146,11 @@ def test_compute_on_an_unreadable_file_is_one_line_exit_2(tmp_path, capsys):
 
 def test_compute_on_an_unreadable_file_as_root_simulated(tmp_path, capsys, monkeypatch):
     # root ignores permissions: make the access check answer as it would for a user
-    from rootvar.addin import engine
+    from rootvar.addin import files
     from rootvar.addin.workbook_build import build_all
 
     trader = build_all(tmp_path)[0]
-    monkeypatch.setattr(engine.os, "access", lambda path, mode: False)
+    monkeypatch.setattr(files.os, "access", lambda path, mode: False)
     _one_line_exit_2(capsys, ["compute", str(trader)], "permission denied")
 
 
@@ -235,3 +235,18 @@ def test_a_closed_output_pipe_ends_quietly(tmp_path):
     code = proc.wait(timeout=120)
     assert "Traceback" not in err and "BrokenPipe" not in err, err
     assert code in (0, 141)
+
+
+def test_compute_output_follows_the_umask(tmp_path):
+    import stat
+
+    from rootvar.addin.workbook_build import build_all
+
+    trader = build_all(tmp_path)[0]
+    old = os.umask(0o022)
+    try:
+        assert main(["compute", str(trader), "--out", str(tmp_path / "c.xlsx")]) == 0
+    finally:
+        os.umask(old)
+    # a temporary file's private 0600 must not survive the move (common practice, no source)
+    assert stat.S_IMODE((tmp_path / "c.xlsx").stat().st_mode) == 0o644

@@ -11,6 +11,7 @@ from openpyxl import load_workbook
 from openpyxl.chart import LineChart, Reference
 
 import rootvar.addin.control as control
+from rootvar.addin import files
 from rootvar.addin.cli import main
 from rootvar.core import HestonParams, InputError
 from rootvar.core.control import ControlSettings, ModelSpec, check_model, row_seed
@@ -250,7 +251,7 @@ def test_read_only_folder_leaves_everything_unchanged(tmp_path, monkeypatch, cap
         def refuse(*args, **kwargs):
             raise PermissionError(13, "Permission denied", str(tmp_path))
 
-        monkeypatch.setattr(control.saving.tempfile, "mkstemp", refuse)
+        monkeypatch.setattr(files.tempfile, "mkstemp", refuse)
     else:
         tmp_path.chmod(0o555)
     try:

@@ -5,7 +5,7 @@
 - :mod:`.results` builds the result rows and writes the *Results* and *History* sheets;
 - :mod:`.store` is the history store (SQLite or PostgreSQL through SQLAlchemy Core);
 - :mod:`.sheet_import` imports an old *History* sheet into the store once;
-- :mod:`.saving` holds the workbook lock and the atomic save that keeps file rights;
+- :mod:`.saving` holds the workbook lock (the atomic save is :mod:`rootvar.addin.files`);
 - :mod:`.daily_refresh` runs a refresh in that order;
 - :mod:`.history_export` shows or exports the store (``rootvar history``).
 """

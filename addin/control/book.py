@@ -10,7 +10,6 @@ input error naming the cell, and the other models are still checked.
 
 from __future__ import annotations
 
-import errno
 import hashlib
 import io
 import math
@@ -25,6 +24,8 @@ from openpyxl.utils import get_column_letter
 
 from rootvar.core import HestonParams, InputError
 from rootvar.core.control import ControlSettings, ModelSpec
+
+from ..files import file_problem, os_cause
 
 __all__ = [
     "HISTORY_SHEET",
@@ -101,33 +102,6 @@ _OPTIONAL_KEYS = {_norm(k): v for k, v in OPTIONAL_SETTINGS.items()}
 # ------------------------------------------------------------------ the file
 
 
-def _os_cause(exc: OSError) -> str:
-    """The plain cause of a failed file operation ("permission denied", ...)."""
-    if exc.errno in (errno.EACCES, errno.EPERM):
-        return "permission denied"
-    return (exc.strerror or str(exc)).lower()
-
-
-def file_problem(path: Path) -> str | None:
-    """Why ``path`` cannot be read as a workbook file, or None if it can be tried."""
-    try:
-        st = path.stat()
-    except FileNotFoundError:
-        parent = path.parent
-        if not parent.exists():
-            return f"folder {parent} does not exist"
-        return "no such file"
-    except OSError as exc:
-        return f"cannot reach the file ({_os_cause(exc)} on its folder)"
-    if path.is_dir():
-        return "is a folder, not a workbook"
-    if not os.access(path, os.R_OK) and os.geteuid() != 0:
-        return "cannot read the file (permission denied)"
-    if st.st_size == 0:
-        return "empty file, not a workbook"
-    return None
-
-
 @dataclass(frozen=True)
 class BookSnapshot:
     """The bytes of the workbook as read, and its identity at that moment.
@@ -153,7 +127,7 @@ class BookSnapshot:
                 st = os.fstat(fh.fileno())
                 data = fh.read()
         except OSError as exc:
-            raise ControlError(f"{path}: cannot read the file ({_os_cause(exc)})") from exc
+            raise ControlError(f"{path}: cannot read the file ({os_cause(exc)})") from exc
         return cls(path, data, st.st_size, st.st_mtime_ns, hashlib.sha256(data).hexdigest())
 
     def changed_since(self) -> str:
@@ -161,13 +135,13 @@ class BookSnapshot:
         try:
             st = self.path.stat()
         except OSError as exc:
-            return f"it can no longer be reached ({_os_cause(exc)})"
+            return f"it can no longer be reached ({os_cause(exc)})"
         if st.st_size != self.size or st.st_mtime_ns != self.mtime_ns:
             return "it was changed by something else while the refresh ran"
         try:
             digest = hashlib.sha256(self.path.read_bytes()).hexdigest()
         except OSError as exc:
-            return f"it can no longer be read ({_os_cause(exc)})"
+            return f"it can no longer be read ({os_cause(exc)})"
         if digest != self.sha256:
             return "its content was changed by something else while the refresh ran"
         return ""

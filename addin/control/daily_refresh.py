@@ -24,12 +24,12 @@ from pathlib import Path
 
 from rootvar.core import __version__
 
+from ..files import SaveError, file_problem, save_atomic
 from .book import (
     HISTORY_SHEET,
     MODELS_SHEET,
     SETTINGS_SHEET,
     ControlError,
-    file_problem,
     foreign_content,
     read_book,
     read_models,
@@ -44,7 +44,7 @@ from .results import (
     write_history_window,
     write_results,
 )
-from .saving import BookLock, save_atomic
+from .saving import BookLock
 from .sheet_import import rows_from_history_sheet
 from .store import HistoryStore, book_label, default_store_url
 
@@ -191,5 +191,8 @@ def refresh(
                     f"wrote {target.name} instead of {path.name}: {why}; the store holds "
                     f"{as_of} all the same"
                 )
-        backup = save_atomic(wb.save, target, keep_backup=True)
+        try:
+            backup = save_atomic(wb.save, target, keep_backup=True)
+        except SaveError as exc:
+            raise ControlError(str(exc)) from exc
     return RefreshOutcome(_exit_code(rows), target, backup, rows, notes, store.shown)

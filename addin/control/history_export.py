@@ -16,6 +16,7 @@ import pandas as pd
 from openpyxl import Workbook
 from openpyxl.chart import LineChart, Reference
 from openpyxl.styles import Font
+from openpyxl.utils import get_column_letter
 
 from .book import SETTINGS_SHEET, ControlError, read_book, read_settings
 from .results import FIELDS
@@ -123,14 +124,8 @@ def write_export(frame: pd.DataFrame, out: Path, by_option: bool) -> None:
             series.marker.symbol = "circle"
             series.smooth = False
         chart.height, chart.width = 9, 20
-        tw.add_chart(chart, f"{_col(tw.max_column + 2)}2")
+        tw.add_chart(chart, f"{get_column_letter(tw.max_column + 2)}2")
     wb.save(out)
-
-
-def _col(n: int) -> str:
-    from openpyxl.utils import get_column_letter
-
-    return get_column_letter(n)
 
 
 def text_table(frame: pd.DataFrame) -> str:

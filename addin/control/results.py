@@ -59,7 +59,6 @@ _FORMATS = {
     "bp": "+0.0;-0.0;0.0",
     "z": "+0.00;-0.00;0.00",
     "seed": "0",
-    "text": "@",
 }
 _TINY_PROB_FORMAT = "0.0E+00"  # probabilities below 0.01% would read 0.00%
 
@@ -248,10 +247,12 @@ def _header(ws, settings: ControlSettings | None):
 
 
 def _format(cell, kind, value):
-    if kind == "prob" and isinstance(value, float) and 0 < abs(value) < 1e-4:
+    if isinstance(value, str) or kind == "text":
+        return  # text keeps the General format
+    if kind == "prob" and 0 < abs(value) < 1e-4:
         cell.number_format = _TINY_PROB_FORMAT
-    elif kind != "text" or isinstance(value, str):
-        cell.number_format = _FORMATS[kind] if not isinstance(value, str) else "General"
+    else:
+        cell.number_format = _FORMATS[kind]
 
 
 def _write_table(ws, rows, settings, first=2):

@@ -1,4 +1,4 @@
-"""Saving a workbook safely: one writer at a time, atomic replace, rights kept.
+"""One writer at a time: the workbook lock.
 
 The lock
 --------
@@ -21,14 +21,9 @@ spreadsheet program holding the file open is seen by its own lock file
 Identity check
 --------------
 Just before the replace the workbook's size, modification time and SHA-256
-are compared with what was read; if anything else changed it meanwhile,
-nothing is written in place.
-
-Rights
-------
-The replaced workbook keeps its mode bits and, where the OS allows, its
-group.  New files (the backup, a first workbook) follow the user's umask; the
-backup is never more open than the workbook it copies.
+are compared with what was read (:class:`~.book.BookSnapshot`); if anything
+else changed it meanwhile, nothing is written in place.  The save itself,
+keeping the workbook's rights, is :func:`rootvar.addin.files.save_atomic`.
 """
 
 from __future__ import annotations
@@ -36,35 +31,19 @@ from __future__ import annotations
 import datetime as dt
 import json
 import os
-import shutil
 import socket
-import stat
-import tempfile
 from pathlib import Path
 
 from filelock import FileLock, Timeout
 
+from ..files import current_umask
 from .book import ControlError
 
-__all__ = ["BookLock", "LockBusy", "current_umask", "save_atomic"]
+__all__ = ["BookLock", "LockBusy"]
 
 
 class LockBusy(ControlError):
     """Another run holds the workbook's lock past the waiting time."""
-
-
-def current_umask() -> int:
-    """The process's umask (read without changing it where the OS tells it)."""
-    try:
-        with open("/proc/self/status", encoding="ascii") as fh:
-            for line in fh:
-                if line.startswith("Umask:"):
-                    return int(line.split()[1], 8)
-    except OSError:
-        pass
-    mask = os.umask(0o022)  # elsewhere the only way to read it is to set it
-    os.umask(mask)
-    return mask
 
 
 class BookLock:
@@ -150,55 +129,3 @@ def _write_new(path: Path, data: bytes) -> None:
     with open(tmp, "wb") as fh:
         fh.write(data)
     os.replace(tmp, path)
-
-
-def _copy_rights(source_stat: os.stat_result | None, target: str) -> None:
-    """Give ``target`` the mode (and group, where allowed) of the file it replaces."""
-    if source_stat is None:
-        os.chmod(target, 0o666 & ~current_umask())
-        return
-    os.chmod(target, stat.S_IMODE(source_stat.st_mode))
-    if hasattr(os, "chown"):
-        try:
-            os.chown(target, -1, source_stat.st_gid)
-        except OSError:
-            pass  # only the owner's groups may be given; the mode is what matters
-
-
-def save_atomic(save, target: Path, keep_backup: bool) -> Path | None:
-    """Write through ``save(path)`` to a temporary file, then replace ``target`` atomically.
-
-    Returns the backup's path (``NAME.bak.xlsx``) when one was kept.  On any
-    failure the target is left as it was and :class:`ControlError` is raised.
-    """
-    folder = target.parent
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=".rootvar-", suffix=target.suffix, dir=folder)
-    except OSError as exc:
-        raise ControlError(f"cannot write in {folder}: {exc.strerror or exc}") from exc
-    os.close(fd)
-    backup = None
-    try:
-        try:
-            before = target.stat()
-        except FileNotFoundError:
-            before = None
-        save(tmp)
-        with open(tmp, "rb") as fh:
-            os.fsync(fh.fileno())
-        _copy_rights(before, tmp)
-        if keep_backup and before is not None:
-            backup = target.with_name(f"{target.stem}.bak{target.suffix}")
-            fd2, tmp_backup = tempfile.mkstemp(prefix=".rootvar-", suffix=".bak", dir=folder)
-            os.close(fd2)
-            shutil.copyfile(target, tmp_backup)
-            # umask-following, and never more open than the workbook itself
-            os.chmod(tmp_backup, (0o666 & ~current_umask()) & stat.S_IMODE(before.st_mode))
-            os.replace(tmp_backup, backup)
-        os.replace(tmp, target)
-    except Exception as exc:
-        raise ControlError(f"could not save {target}: {exc}; the original is unchanged") from exc
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-    return backup

@@ -333,7 +333,8 @@ class HistoryStore:
     ) -> list[dict]:
         """Rows as dicts (keys of FIELDS plus ``book``), by date, then in written order."""
         r = self.rows
-        q = sa.select(r).order_by(r.c.book, r.c.as_of, r.c.position)
+        shown = [c for c in r.c if c.name != "position"]  # the order is the position
+        q = sa.select(*shown).order_by(r.c.book, r.c.as_of, r.c.position)
         if book is not None:
             q = q.where(r.c.book == book)
         if model is not None:
@@ -347,7 +348,7 @@ class HistoryStore:
             q = q.where(r.c.as_of >= kept[0])
         try:
             with self.engine.connect() as conn:
-                return [_py_row(dict(m)) for m in conn.execute(q).mappings()]
+                return [dict(m) for m in conn.execute(q).mappings()]
         except SQLAlchemyError as exc:
             raise self._fail("read its rows", exc) from exc
 
@@ -368,11 +369,6 @@ def _db_row(row: dict) -> dict:
             value = None
         out[f.key] = value
     return out
-
-
-def _py_row(row: dict) -> dict:
-    row.pop("position", None)
-    return row
 
 
 def book_label(workbook: Path, configured: str) -> str:
