@@ -18,7 +18,13 @@ from .mc_schemes import SCHEMES
 from .monte_carlo import BLOCK, DEFAULT_SEED, MCResult, expected_negative_step_fraction, mc_price
 from .params import HestonParams
 from .pde import PDEResult, pde_price
-from .products import AsianOption, BarrierOption, EuropeanOption, ForwardStartOption
+from .products import (
+    AsianOption,
+    BarrierOption,
+    DigitalOption,
+    EuropeanOption,
+    ForwardStartOption,
+)
 from .quotes import QuoteSet, StaticArbitrageWarning, read_quotes
 from .report import DEFAULT_QUANTILES, variance_report
 from .validation import InputError
@@ -67,6 +73,7 @@ __all__ = [
     "Calibration",
     "Comparison",
     "CompileNotice",
+    "DigitalOption",
     "EulerWorstCase",
     "EuropeanOption",
     "ForwardStartOption",

@@ -2,9 +2,9 @@
 
 A product is plain data: what is paid, on what, and when.  Pricers (the
 finite-difference solver of :mod:`rootvar.core.pde`, and later Monte Carlo
-exotics) read these fields; they hold no pricing code.  New contracts (Asian,
-forward-start, digital) are added as further frozen dataclasses beside these,
-each validating itself on construction.
+exotics) read these fields; they hold no pricing code.  New contracts are
+added as further frozen dataclasses beside these, each validating itself on
+construction.
 """
 
 from __future__ import annotations
@@ -22,6 +22,7 @@ __all__ = [
     "KNOCKS",
     "AsianOption",
     "BarrierOption",
+    "DigitalOption",
     "EuropeanOption",
     "ForwardStartOption",
 ]
@@ -254,3 +255,43 @@ class ForwardStartOption:
         strike = self.strike_share * np.asarray(spot_at_start, dtype=float)
         s = np.asarray(spot_at_expiry, dtype=float)
         return np.maximum(s - strike, 0.0) if self.kind == "call" else np.maximum(strike - s, 0.0)
+
+
+@dataclass(frozen=True)
+class DigitalOption:
+    """A cash-or-nothing digital call or put.
+
+    Pays ``cash`` at ``maturity`` when the spot then is above the strike
+    (call) or below it (put), and nothing otherwise.
+
+    Parameters
+    ----------
+    kind : {"call", "put"}
+    strike : float
+        Strike, > 0, in the currency of the spot.
+    maturity : float
+        Time to expiry in years, > 0.
+    cash : float
+        Amount paid, > 0, in the currency of the spot (default 1).
+
+    Notes
+    -----
+    A spot exactly at the strike pays nothing under either kind, so a call
+    and a put on the same strike pay ``cash`` together on every other path.
+    """
+
+    kind: str
+    strike: float
+    maturity: float
+    cash: float = 1.0
+
+    def __post_init__(self) -> None:
+        check_choice("kind", self.kind, KINDS)
+        for name in ("strike", "maturity", "cash"):
+            object.__setattr__(self, name, _positive(name, getattr(self, name)))
+
+    def payoff(self, spot_at_expiry):
+        """``cash`` where the spot at expiry is beyond the strike, else 0."""
+        s = np.asarray(spot_at_expiry, dtype=float)
+        won = s > self.strike if self.kind == "call" else s < self.strike
+        return np.where(won, self.cash, 0.0)

@@ -9,6 +9,7 @@ import pytest
 from rootvar.core import (
     AsianOption,
     BarrierOption,
+    DigitalOption,
     EuropeanOption,
     ForwardStartOption,
     InputError,
@@ -129,3 +130,31 @@ def test_bad_forward_start(kwargs, fragment):
     args.update(kwargs)
     with pytest.raises(InputError, match=re.escape(fragment)):
         ForwardStartOption(**args)
+
+
+def test_digital_pays_cash_strictly_beyond_the_strike():
+    # cash-or-nothing payoff (Hull, Options, Futures and Other Derivatives, ch. on exotics):
+    # call and put pay the cash together everywhere except at the strike itself
+    s = np.array([80.0, 100.0, 120.0])
+    call = DigitalOption("call", 100, 1, cash=5).payoff(s)
+    put = DigitalOption("put", 100, 1, cash=5).payoff(s)
+    np.testing.assert_array_equal(call, [0, 0, 5])
+    np.testing.assert_array_equal(put, [5, 0, 0])
+    assert DigitalOption("call", 100, 1).cash == 1.0
+
+
+@pytest.mark.parametrize(
+    "kwargs, fragment",
+    [
+        ({"kind": "binary"}, "kind must be one of"),
+        ({"strike": 0}, "strike must be > 0, got 0.0"),
+        ({"maturity": -1}, "maturity must be > 0, got -1.0"),
+        ({"cash": 0}, "cash must be > 0, got 0.0"),
+        ({"cash": [1, 2]}, "cash must be a single number"),
+    ],
+)
+def test_bad_digital(kwargs, fragment):
+    args = dict(kind="call", strike=100.0, maturity=1.0)
+    args.update(kwargs)
+    with pytest.raises(InputError, match=re.escape(fragment)):
+        DigitalOption(**args)
