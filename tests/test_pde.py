@@ -374,10 +374,16 @@ def test_feller_breach_converges_and_stays_within_bounds(product):
     assert dip <= DIP  # at most the time stepping's residual below the lower bound
 
 
-def test_feller_breach_bounds_hold_to_rounding_for_the_put_and_the_fang_oosterlee_set():
-    # Where the solution is not near zero at small spot and large variance, the dip is
-    # rounding only (bounds as in _bound_gaps).
-    cases = [(ANDERSEN_I, FELLER_PRODUCTS[1])] + [(FO, p) for p in FELLER_PRODUCTS]
+# Andersen (2008) case II at 1 year (value from memory: kappa 0.3, theta 0.04, vol_of_vol 0.9,
+# rho -0.5; Feller ratio 0.03).
+ANDERSEN_II = HestonParams(v0=0.04, kappa=0.3, theta=0.04, vol_of_vol=0.9, rho=-0.5)
+
+
+def test_feller_breach_bounds_hold_to_rounding_where_the_dip_is_absent():
+    # The case I put, Andersen case II (Feller ratio 0.03) and the Fang & Oosterlee set: the
+    # whole grid solution lies within the bounds of _bound_gaps to rounding.
+    cases = [(ANDERSEN_I, FELLER_PRODUCTS[1])]
+    cases += [(params, p) for params in (ANDERSEN_II, FO) for p in FELLER_PRODUCTS]
     for params, product in cases:
         dip, rise = _bound_gaps(pde_price(params, SPOT, product, refine=False), product)
         assert dip <= ROUNDING and rise <= ROUNDING, (params, product, dip, rise)
