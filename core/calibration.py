@@ -139,7 +139,13 @@ class _Coordinates:
             [np.inf, np.inf, np.inf, np.inf, 1.0],
         )
 
-    def params(self, x):
+    def values(self, x):
+        """Natural parameters ``(v0, kappa, theta, vol_of_vol, rho)`` at ``x``, as an array.
+
+        The optimiser's callbacks use these directly: building (and
+        validating) a :class:`HestonParams` per evaluation costs as much as
+        the compiled surface evaluation itself.
+        """
         v0, kappa, theta, ratio = np.exp(np.clip(x[:4], -40.0, 12.0))
         if self.min_ratio is not None:
             ratio = max(ratio, self.min_ratio)  # exp(ln R_min) may round below R_min
@@ -151,13 +157,16 @@ class _Coordinates:
                 if 2.0 * kappa * theta / vol**2 >= self.min_ratio:
                     break
                 vol = np.nextafter(vol, 0.0)
-        return HestonParams(v0, kappa, theta, vol, float(np.clip(x[4], -1.0, 1.0)))
+        return np.array([v0, kappa, theta, vol, min(max(float(x[4]), -1.0), 1.0)])
+
+    def params(self, x):
+        return HestonParams(*(float(v) for v in self.values(x)))
 
     def chain(self, x, p):
-        """d(natural parameters) / dx at ``x`` (``p = params(x)``), shape (5, 5)."""
-        m = np.diag([p.v0, p.kappa, p.theta, 0.0, 1.0])
-        m[3, 1] = m[3, 2] = 0.5 * p.vol_of_vol
-        m[3, 3] = -0.5 * p.vol_of_vol
+        """d(natural parameters) / dx at ``x`` (``p = values(x)``), shape (5, 5)."""
+        m = np.diag([p[0], p[1], p[2], 0.0, 1.0])
+        m[3, 1] = m[3, 2] = 0.5 * p[3]
+        m[3, 3] = -0.5 * p[3]
         return m
 
     def start(self, p):
@@ -298,7 +307,7 @@ class _Problem:
     def _residuals(self, pricer, x, transform, with_jac=False):
         with self._lock:
             self.evaluations += 1
-        p = transform.params(x)
+        p = transform.values(x)
         price, grad = pricer.evaluate(p)
         res = (price - self.market) * self.scale
         # a trial point far outside the grid's reach can overflow; a large finite
@@ -611,7 +620,7 @@ def _uncertainty(problem: _Problem, run: _Run, err, ok):
     """Standard errors, correlation, identified flags and warnings from the Jacobian."""
     p, transform = run.params, run.transform
     _, grad = run.pricer.evaluate(p)
-    chain = transform.chain(run.x, p)
+    chain = transform.chain(run.x, transform.values(run.x))
     fitted = transform.names
     if transform.min_ratio is not None and p.feller_ratio <= transform.min_ratio * (1 + 1e-9):
         # on the constraint the ratio is held, not estimated: four free directions

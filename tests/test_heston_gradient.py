@@ -2,6 +2,7 @@
 
 import dataclasses
 
+import gradient_reference
 import numpy as np
 import pytest
 from hypothesis import given, settings
@@ -44,6 +45,30 @@ def test_log_cf_derivatives_match_central_differences():
         down = dataclasses.replace(P, **{name: getattr(P, name) - h})
         fd = (heston_log_cf(u, up, 0.7, 0.01) - heston_log_cf(u, down, 0.7, 0.01)) / (2 * h)
         assert np.max(np.abs(fd - grad[j])) <= 1e-7 * np.max(np.abs(grad[j])), name
+
+
+def test_compiled_log_cf_gradient_equals_the_numpy_version():
+    # tests/gradient_reference.py: the numpy implementation the kernel replaced
+    u = np.linspace(0.0, 120.0, 61)
+    for t in (1 / 52, 0.5, 5.0):
+        lcf, grad = log_cf_gradient(u, P, t, 0.013)
+        ref_lcf, ref_grad = gradient_reference.log_cf_gradient(u, P, t, 0.013)
+        np.testing.assert_allclose(lcf, ref_lcf, rtol=1e-13, atol=1e-13)
+        for j in range(5):
+            scale = np.max(np.abs(ref_grad[j]))
+            assert np.max(np.abs(grad[j] - ref_grad[j])) <= 1e-13 * scale, PARAM_NAMES[j]
+
+
+def test_compiled_surface_sums_equal_the_numpy_version():
+    # tests/gradient_reference.py: the numpy COS sums (matrix products) the kernel replaced
+    k, t = (a.ravel() for a in _surface(P))
+    pricer = SurfacePricer(cos_grid(P, 100.0, k, t, 0.03, 0.01), 100.0, k, t, 0.03, 0.01)
+    price, grad = pricer.evaluate(P)
+    ref_price, ref_grad = gradient_reference.surface_evaluate(pricer, P)
+    np.testing.assert_allclose(price, ref_price, rtol=0, atol=1e-13)
+    for j in range(5):
+        scale = np.max(np.abs(ref_grad[:, j]))
+        assert np.max(np.abs(grad[:, j] - ref_grad[:, j])) <= 1e-12 * scale, PARAM_NAMES[j]
 
 
 def test_prices_equal_the_certified_prices():
