@@ -45,6 +45,12 @@ LOOSE_TOL = 1e-6
 TIGHT_TOL = 1e-8
 #: Grid re-certifications per start before giving up.
 MAX_STAGES = 4
+#: Largest |rho| a fit may reach.  At |rho| = 1 the model degenerates (one
+#: Brownian motion drives price and variance), the far call wing prices below the
+#: certification floor, and the certified COS grid needs some 8 times the terms;
+#: 0.999 costs an enforced fit of the benchmark equity skew 0.13 bp of objective
+#: against rho = -1 (144.06 -> 144.18 bp) for 27% fewer terms.
+RHO_BOUND = 0.999
 #: A direction of parameter space is "not pinned down" when a 10% move along it
 #: changes the quotes by less than this RMS (vol, i.e. 1 bp).
 IDENTIFY_RMS = 1e-4
@@ -130,9 +136,10 @@ class _Coordinates:
     """``x = (ln v0, ln kappa, ln theta, ln R, rho)`` with ``R`` the Feller ratio.
 
     ``vol_of_vol = sqrt(2 kappa theta / R)``.  The Feller constraint becomes a
-    bound on one coordinate, ``ln R >= ln R_min``; ``rho`` keeps its natural
-    bounds ``[-1, 1]``; ``v0``, ``kappa`` and ``theta`` are unbounded on a log
-    scale.  Free fits use the same coordinates with ``ln R`` unbounded.
+    bound on one coordinate, ``ln R >= ln R_min``; ``rho`` is bounded to
+    ``[-RHO_BOUND, RHO_BOUND]``, strictly inside ``(-1, 1)``; ``v0``,
+    ``kappa`` and ``theta`` are unbounded on a log scale.  Free fits use the
+    same coordinates with ``ln R`` unbounded.
     """
 
     size = 5
@@ -142,8 +149,8 @@ class _Coordinates:
         self.min_ratio = min_ratio
         low = -np.inf if min_ratio is None else np.log(min_ratio)
         self.bounds = (
-            [-np.inf, -np.inf, -np.inf, low, -1.0],
-            [np.inf, np.inf, np.inf, np.inf, 1.0],
+            [-np.inf, -np.inf, -np.inf, low, -RHO_BOUND],
+            [np.inf, np.inf, np.inf, np.inf, RHO_BOUND],
         )
 
     def values(self, x):
@@ -164,7 +171,7 @@ class _Coordinates:
                 if 2.0 * kappa * theta / vol**2 >= self.min_ratio:
                     break
                 vol = np.nextafter(vol, 0.0)
-        return np.array([v0, kappa, theta, vol, min(max(float(x[4]), -1.0), 1.0)])
+        return np.array([v0, kappa, theta, vol, min(max(float(x[4]), -RHO_BOUND), RHO_BOUND)])
 
     def params(self, x):
         return HestonParams(*(float(v) for v in self.values(x)))
@@ -180,7 +187,7 @@ class _Coordinates:
         ratio = p.feller_ratio
         if self.min_ratio is not None:
             ratio = max(ratio, 1.2 * self.min_ratio)  # start strictly inside
-        rho = float(np.clip(p.rho, -0.999, 0.999))
+        rho = float(np.clip(p.rho, -0.99 * RHO_BOUND, 0.99 * RHO_BOUND))  # strictly inside
         return np.array([np.log(p.v0), np.log(p.kappa), np.log(p.theta), np.log(ratio), rho])
 
 
@@ -574,6 +581,11 @@ def _finish(problem: _Problem, run: _Run, label, min_ratio, tried, at_best, bega
     )
     se, corr, identified, warn = _uncertainty(problem, run, err, ok)
     notes.extend(warn)
+    if abs(p.rho) >= RHO_BOUND * (1 - 1e-12):
+        notes.append(
+            f"rho sits on its bound {p.rho:+.3f}: the quotes ask for a more extreme "
+            "correlation than the fit allows (|rho| <= 0.999)"
+        )
     return Calibration(
         params=p,
         feller=label,
