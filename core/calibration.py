@@ -461,17 +461,22 @@ def calibrate(
     / R)``.  The constraint ``R >= R_min`` is then a plain bound on one
     coordinate, which the trust-region reflective solver keeps exactly and can
     sit on; ``v0``, ``kappa`` and ``theta`` stay unbounded (log scale) and
-    ``rho`` keeps its natural bounds.  A penalty would let the optimum sit
-    slightly outside the constraint and bend the objective near it; a
-    smooth map of an unbounded variable onto ``R >= R_min`` (``R_min + e^y``,
-    or a squared slack) puts the boundary at infinity or at a stationary
-    point, where the solver crawls: a binding constraint is the usual case.
+    ``rho`` is bounded to ``[-0.999, 0.999]`` (:data:`RHO_BOUND`: at
+    ``|rho| = 1`` the model degenerates and the certified grid needs about 8
+    times the terms; a fit on the bound says so in its warnings).  A penalty
+    would let the optimum sit slightly outside the constraint and bend the
+    objective near it; a smooth map of an unbounded variable onto
+    ``R >= R_min`` (``R_min + e^y``, or a squared slack) puts the boundary at
+    infinity or at a stationary point, where the solver crawls: a binding
+    constraint is the usual case.
 
     *Method.*  ``scipy.optimize.least_squares`` (trust-region reflective,
     Jacobian scaling) with the analytic Jacobian, from the reasonable start and ``starts`` scrambled
-    Sobol points (``scipy.stats.qmc``, seeded).  Each run prices on the
-    certified COS grid of its start; at its optimum the grid is checked
-    against certified prices and, if it moved, rebuilt and the run resumed.
+    Sobol points (``scipy.stats.qmc``, seeded), each fitted to the end; the
+    best is kept.  Each run prices on the certified COS grid of its start; at
+    its optimum the grid is checked against certified prices and, if it
+    moved, rebuilt and the run resumed, so every start's fit is compared on
+    a grid certified at its own optimum.
 
     *Standard errors* from ``s^2 (J^T J)^{-1}`` with ``J`` the Jacobian of the
     weighted implied-vol residuals in the fitted parameters and
