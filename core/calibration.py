@@ -275,24 +275,35 @@ class _Problem:
         grid = grid_from_details(details, p, self.rate - self.div_yield)
         return SurfacePricer(grid, self.spot, q.strike, q.maturity, self.rate, self.div_yield)
 
-    def run(self, start: HestonParams, transform) -> _Run | None:
+    def run(self, start: HestonParams, transform, tight=True) -> _Run | None:
         """Least squares from ``start`` on the certified grid of the start.
 
         The grid is checked against certified prices at the optimum and,
         when the optimum has moved off it, rebuilt there and the fit resumed.
-        None when the start has no certified grid.
+        Without ``tight`` the fits on grids certified at the optimum stop at
+        the loose tolerance too (a start of a multi-start, compared with the
+        others before the best is polished).  None when the start has no
+        certified grid.
         """
         details = self.details(start)
         if details.fallbacks:
             return None
         pricer = self.pricer(start, details)
-        x = transform.start(start)
+        return self._stages(pricer, transform.start(start), transform, tight, first_loose=True)
+
+    def polish(self, run: _Run) -> _Run:
+        """``run`` finished at the tight tolerance, from its optimum on its certified grid."""
+        return self._stages(run.pricer, run.x, run.transform, True, first_loose=False)
+
+    def _stages(self, pricer, x, transform, tight, first_loose) -> _Run:
         status = "converged"
         certified = False
-        # a loose fit on the start's grid first, then tight fits on grids certified
-        # at the optimum found, so no precision is spent on a grid about to change
+        details = None
+        # a loose fit on the start's grid first, then fits on grids certified at the
+        # optimum found, so no precision is spent on a grid about to change
         for stage in range(MAX_STAGES):
-            x, ok = self._least_squares(pricer, transform, x, tight=stage > 0)
+            loose = (stage == 0 and first_loose) or not tight
+            x, ok = self._least_squares(pricer, transform, x, tight=not loose)
             status = "converged" if ok else "not converged: evaluation limit reached"
             p = transform.params(x)
             details = self.details(p)
@@ -302,7 +313,7 @@ class _Problem:
             put, _ = pricer.evaluate(p)
             put = put - np.where(pricer.call_side, pricer.parity, 0.0)
             on_grid = np.max(np.abs(put - details.price)) <= GRID_TOL * self.spot
-            if on_grid and stage > 0:
+            if on_grid and (stage > 0 or not first_loose):
                 certified = True
                 break
             if not on_grid:
@@ -514,15 +525,16 @@ def calibrate(
     first = start or _reasonable_start(q, spot, rate, div_yield)
     points = [first, *_sobol_starts(first, n_starts, seed)]
     transform = _Coordinates(min_ratio)
-    # every start is fitted to the end, on grids certified at its own optimum, so
-    # the fits compare on certified prices: a start stopped on its own start's grid
-    # (once the screening here) reads tens of bp off and hides that it would have
-    # reached the same optimum
+    # every start is fitted on grids certified at its own optimum, so the fits
+    # compare on certified prices: a start stopped on its own start's grid (once
+    # the screening here) reads tens of bp off and hides that it would have reached
+    # the same optimum.  With several starts each stops at the loose tolerance, and
+    # only the best is polished to the tight one.
     if len(points) == 1:
-        runs = [_try(problem, points[0], transform)]
+        runs = [_try(problem, points[0], transform, True)]
     else:
         with ThreadPoolExecutor(max_workers=_workers(workers, len(points))) as pool:
-            runs = list(pool.map(lambda pt: _try(problem, pt, transform), points))
+            runs = list(pool.map(lambda pt: _try(problem, pt, transform, False), points))
     runs = [r for r in runs if r is not None]
     if not runs:
         raise InputError("quotes could not be fitted: no start point had a certified COS grid")
@@ -530,15 +542,26 @@ def calibrate(
     best = min(ranked, key=lambda r: r.rmse_bp)
     near = max(SAME_OPTIMUM_BP, SAME_OPTIMUM_REL * best.rmse_bp)
     at_best = sum(r.rmse_bp <= best.rmse_bp + near for r in ranked)
+    if len(points) > 1 and best.certified:
+        best = _polished(problem, best)
     return _finish(problem, best, label, min_ratio, len(points), at_best, began)
 
 
-def _try(problem, point, transform):
+def _try(problem, point, transform, tight):
     """One run, or None when the start has no certified grid or breaks the arithmetic."""
     try:
-        return problem.run(point, transform)
+        return problem.run(point, transform, tight)
     except (InputError, FloatingPointError, np.linalg.LinAlgError):
         return None
+
+
+def _polished(problem, run):
+    """The best start finished at the tight tolerance; itself if that fails to certify."""
+    try:
+        done = problem.polish(run)
+    except (InputError, FloatingPointError, np.linalg.LinAlgError):
+        return run
+    return done if done.certified else run
 
 
 def _workers(workers, jobs) -> int:
