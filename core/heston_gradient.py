@@ -67,7 +67,9 @@ def log_cf_gradient(u, params: HestonParams, maturity, drift=0.0):
     rearranged, equivalent form of the characteristic function; this is its
     counterpart for the Albrecher et al. (2007) form the pricer uses, in which
     the logarithm never crosses its branch cut, so its derivative ``L'`` is
-    the plain ratio below.
+    a plain ratio.  Evaluated by the compiled kernel
+    :func:`rootvar.core.gradient_kernels.log_cf_gradient_array`, which the
+    calibration's surface sums share.
 
     References
     ----------
