@@ -15,7 +15,7 @@ import time
 import warnings
 from concurrent.futures import ThreadPoolExecutor
 
-from . import cos_kernels, mc_exotic_kernels, mc_kernels
+from . import cos_kernels, gradient_kernels, mc_exotic_kernels, mc_kernels
 from .numba_setup import numba
 
 __all__ = [
@@ -34,6 +34,9 @@ KERNELS = (
     cos_kernels.log_cf_array,
     cos_kernels.fourier_sums,
     mc_exotic_kernels.exotic_block,
+    gradient_kernels.log_cf_gradient_array,
+    gradient_kernels.put_coefficients,
+    gradient_kernels.surface_sums,
 )
 
 
@@ -78,9 +81,10 @@ def compile_kernels() -> float:
 
     Small calls of the public functions, so that exactly the signatures the
     library uses are compiled: every Monte Carlo scheme kind with both
-    payoffs, and one Fourier price.
+    payoffs, one Fourier price, and one price gradient (the calibration).
     """
     from .fourier import heston_price
+    from .heston_gradient import heston_price_gradient, log_cf_gradient
     from .monte_carlo import mc_price
     from .params import HestonParams
 
@@ -95,6 +99,8 @@ def compile_kernels() -> float:
             )
     heston_price(p, 100.0, [90.0, 110.0], 1.0)
     _compile_exotics(p)
+    heston_price_gradient(p, 100.0, [90.0, 110.0], 1.0)  # the calibration's kernels
+    log_cf_gradient([1.0], p, 1.0)
     return time.perf_counter() - start
 
 

@@ -16,6 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .fourier import heston_price_details
+from .gradient_kernels import log_cf_gradient_array, put_coefficients, surface_sums
 from .heston_cf import log_return_cumulants
 from .params import HestonParams
 from .validation import InputError, as_float_array, broadcast, check_choice
@@ -66,7 +67,9 @@ def log_cf_gradient(u, params: HestonParams, maturity, drift=0.0):
     rearranged, equivalent form of the characteristic function; this is its
     counterpart for the Albrecher et al. (2007) form the pricer uses, in which
     the logarithm never crosses its branch cut, so its derivative ``L'`` is
-    the plain ratio below.
+    a plain ratio.  Evaluated by the compiled kernel
+    :func:`rootvar.core.gradient_kernels.log_cf_gradient_array`, which the
+    calibration's surface sums share.
 
     References
     ----------
@@ -77,87 +80,12 @@ def log_cf_gradient(u, params: HestonParams, maturity, drift=0.0):
     Heston trap. Wilmott Magazine, January 2007, 83-92.
     """
     p = params
-    u = np.asarray(u, dtype=float)
-    t = np.asarray(maturity, dtype=float)
-    sig, rho, kappa = p.vol_of_vol, p.rho, p.kappa
-    sig2 = sig * sig
-    iu = 1j * u
-    xi = kappa - rho * sig * iu
-    quad = u * u + iu
-    d = _sqrt(xi * xi + sig2 * quad)
-    inv_d = 1.0 / d
-    a = xi - d
-    bsum = xi + d
-    inv_b = 1.0 / bsum
-    g = a * inv_b
-    e = _exp(np.maximum(-(d.real * t), -700.0), -(d.imag * t))
-    one_ge = 1.0 - g * e
-    inv_one_ge = 1.0 / one_ge
-    inv_one_g = 1.0 / (1.0 - g)
-    ratio = one_ge * inv_one_g
-    big_l = 0.5 * np.log(ratio.real**2 + ratio.imag**2) + 1j * np.arctan2(ratio.imag, ratio.real)
-    one_e = 1.0 - e
-    frac = one_e * inv_one_ge
-    c_core = a * t - 2.0 * big_l
-    kt = kappa * p.theta / sig2
-    v_s2 = p.v0 / sig2
-    log_cf = iu * drift * t + kt * c_core + v_s2 * a * frac
-
-    def pieces(dxi, dd):
-        """Derivatives of A*T - 2L and of A (1 - e)/(1 - g e) from dxi and dd."""
-        da = dxi - dd
-        dg = (da - g * (dxi + dd)) * inv_b
-        de = -t * e * dd
-        dge = dg * e + g * de
-        dl = -dge * inv_one_ge + dg * inv_one_g
-        dfrac = (-de + frac * dge) * inv_one_ge
-        return da * t - 2.0 * dl, da * frac + a * dfrac
-
-    # kappa: dxi = 1
-    dc_k, dq_k = pieces(1.0, xi * inv_d)
-    # vol_of_vol: dxi = -rho i u, and sigma^2 appears under the root
-    dxi_s = -rho * iu
-    dc_s, dq_s = pieces(dxi_s, (xi * dxi_s + sig * quad) * inv_d)
-    # rho: dxi = -sigma i u
-    dxi_r = -sig * iu
-    dc_r, dq_r = pieces(dxi_r, xi * dxi_r * inv_d)
-    a_frac = a * frac
-    grad = np.stack(
-        [
-            a_frac / sig2,
-            p.theta / sig2 * c_core + kt * dc_k + v_s2 * dq_k,
-            kappa / sig2 * c_core,
-            -2.0 / sig * (kt * c_core + v_s2 * a_frac) + kt * dc_s + v_s2 * dq_s,
-            kt * dc_r + v_s2 * dq_r,
-        ]
+    u, t = np.broadcast_arrays(np.asarray(u, dtype=float), np.asarray(maturity, dtype=float))
+    model = np.array([p.v0, p.kappa, p.theta, p.vol_of_vol, p.rho])
+    out = log_cf_gradient_array(
+        np.ascontiguousarray(u.ravel()), np.ascontiguousarray(t.ravel()), model, float(drift)
     )
-    return log_cf, grad
-
-
-def _sqrt(z):
-    """Principal square root (``Re >= 0``) from real operations.
-
-    numpy's complex ``sqrt`` takes a slow scalar path (measured 10 to 40
-    times slower here); the half-sum form has no cancellation for either
-    sign of ``Re z``.  Fine for ``1e-150 < |z| < 1e150``.
-    """
-    re, im = z.real, z.imag
-    r = np.sqrt(0.5 * (np.abs(re) + np.hypot(re, im)))
-    half = np.divide(0.5 * im, r, out=np.zeros_like(r), where=r > 0)
-    right = re >= 0
-    out = np.empty(z.shape, dtype=complex)
-    out.real = np.where(right, r, np.abs(half))
-    out.imag = np.where(right, half, np.copysign(r, im))
-    return out
-
-
-def _exp(re, im):
-    """``exp(re + i im)`` from real operations (numpy's complex exp is slower)."""
-    m = np.exp(re)
-    out = np.empty(np.broadcast(re, im).shape, dtype=complex)
-    out.real = m * np.cos(im)
-    out.imag = m * np.sin(im)
-    return out
+    return out[0].reshape(u.shape), out[1:].reshape((5,) + u.shape)
 
 
 @dataclass(frozen=True)
@@ -221,9 +149,11 @@ class SurfacePricer:
     """Out-of-the-money prices and their gradient for fixed quotes on a fixed grid.
 
     The payoff coefficients and phase factors depend only on the grid and the
-    quotes, so they are computed once; each evaluation then costs one pass of
-    :func:`log_cf_gradient` over every maturity's frequencies and one small
-    matrix product per maturity.
+    quotes, so they are computed once; each evaluation is then one pass of
+    the compiled kernel :func:`rootvar.core.gradient_kernels.surface_sums`
+    over every maturity's frequencies, which evaluates the characteristic
+    function with its five derivatives (:func:`log_cf_gradient`) and adds
+    the six COS sums of every strike of that maturity.
 
     Parameters
     ----------
@@ -244,10 +174,11 @@ class SurfacePricer:
             times[np.minimum(where, times.size - 1)] != maturity
         ):
             raise InputError("maturity must be one of the grid's maturities, got another")
+        self.strike = strike
         self.n_quotes = strike.size
         # every maturity's frequencies laid end to end: no padding to the longest
-        ends = np.concatenate([[0], np.cumsum(grid.terms)])
-        self.spans = [slice(int(ends[i]), int(ends[i + 1])) for i in range(times.size)]
+        ends = np.concatenate([[0], np.cumsum(grid.terms)]).astype(np.int64)
+        self.term_ends = ends
         k = np.concatenate([np.arange(n) for n in grid.terms])
         owner = np.repeat(np.arange(times.size), grid.terms)
         self.omega = k * (np.pi / (grid.upper - grid.lower))[owner]
@@ -256,26 +187,39 @@ class SurfacePricer:
         self.phase = np.exp(-1j * self.omega * grid.lower[owner])
         self.phase[ends[:-1]] *= 0.5
         self.groups = [np.flatnonzero(where == i) for i in range(times.size)]
+        self.quotes = np.concatenate(self.groups).astype(np.int64)
+        self.quote_ends = np.concatenate(
+            [[0], np.cumsum([idx.size for idx in self.groups])]
+        ).astype(np.int64)
         forward = self.spot * np.exp((self.rate - self.div_yield) * maturity)
         self.call_side = strike >= forward
         self.parity = self.spot * np.exp(-self.div_yield * maturity) - strike * np.exp(
             -self.rate * maturity
         )
-        self.payoff = []
+        blocks = []
         for i, idx in enumerate(self.groups):
-            self.payoff.append(
-                _put_coefficients(
-                    self.omega[self.spans[i]],
-                    grid.lower[i],
-                    grid.upper[i],
-                    np.log(self.spot / strike[idx]),
-                    strike[idx],
-                )
-                * np.exp(-self.rate * times[i])
+            span = slice(int(ends[i]), int(ends[i + 1]))
+            coef = put_coefficients(
+                self.omega[span],
+                float(grid.lower[i]),
+                float(grid.upper[i]),
+                np.log(self.spot / strike[idx]),
+                strike[idx],
             )
+            blocks.append((coef * np.exp(-self.rate * times[i])).ravel())
+        self.payoff_starts = np.concatenate([[0], np.cumsum([blk.size for blk in blocks])]).astype(
+            np.int64
+        )
+        self.payoff = np.concatenate(blocks)
 
-    def evaluate(self, params: HestonParams):
+    def evaluate(self, params):
         """Out-of-the-money option prices and their gradient.
+
+        Parameters
+        ----------
+        params : HestonParams or array_like
+            The model, or its five values in the order of
+            :data:`PARAM_NAMES` (taken as already checked).
 
         Returns
         -------
@@ -285,30 +229,23 @@ class SurfacePricer:
         grad : ndarray, shape (n_quotes, 5)
             Derivatives in the order of :data:`PARAM_NAMES`.
         """
-        log_cf, dlog = log_cf_gradient(self.omega, params, self.times, self.rate - self.div_yield)
-        cf = _exp(log_cf.real, log_cf.imag) * self.phase
-        coef = np.concatenate([cf.real[None], (dlog * cf[None]).real], axis=0)  # (6, terms)
-        out = np.empty((6, self.n_quotes))
-        for i, idx in enumerate(self.groups):
-            if idx.size:
-                out[:, idx] = coef[:, self.spans[i]] @ self.payoff[i]
+        if isinstance(params, HestonParams):
+            p = params
+            params = (p.v0, p.kappa, p.theta, p.vol_of_vol, p.rho)
+        model = np.append(np.asarray(params, dtype=float), self.rate - self.div_yield)
+        out = surface_sums(
+            self.omega,
+            self.times,
+            self.phase,
+            self.term_ends,
+            self.payoff,
+            self.payoff_starts,
+            self.quotes,
+            self.quote_ends,
+            model,
+        )
         price = out[0] + np.where(self.call_side, self.parity, 0.0)
         return price, out[1:].T
-
-
-def _put_coefficients(omega, a, b, log_moneyness, strike):
-    """Cosine coefficients (times ``2 / (b - a)``) of the put payoff, per frequency and strike.
-
-    ``V_k = 2 / (b - a) K (psi_k(a, c) - e^x chi_k(a, c))`` with the cut
-    ``c = clip(-x, a, b)`` (Fang & Oosterlee 2008, eqs. 22-23).
-    """
-    cut = np.clip(-log_moneyness, a, b)[None, :]
-    w = omega[:, None]
-    arg = w * (cut - a)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        psi = np.where(w > 0, np.sin(arg) / w, cut - a)
-    chi = (np.cos(arg) * np.exp(cut) - np.exp(a) + w * np.sin(arg) * np.exp(cut)) / (1.0 + w * w)
-    return 2.0 / (b - a) * strike[None, :] * (psi - np.exp(log_moneyness)[None, :] * chi)
 
 
 def heston_price_gradient(

@@ -130,6 +130,30 @@ def test_enforced_fit_keeps_feller_and_never_beats_the_free_fit():
     _check_round_trip(loose, FELLER_OK)
 
 
+def test_rho_stays_strictly_inside_minus_one_and_the_fit_says_when_it_sits_on_the_bound():
+    # quotes from rho = -1 exactly (a degenerate model) ask for more than the bound allows
+    p = HestonParams(0.04, 1.5, 0.04, 0.5, -1.0)
+    c = calibrate(surface(p, maturities=(0.25, 1.0, 2.0), n=7), SPOT, RATE, DIV, starts=0)
+    assert c.converged
+    assert c.params.rho == pytest.approx(-0.999, abs=1e-12)
+    assert any("rho sits on its bound -0.999" in w for w in c.warnings)
+    # an interior optimum carries no such warning
+    inner = calibrate(
+        surface(FELLER_OK, maturities=(0.25, 1.0, 2.0), n=7), SPOT, RATE, DIV, starts=0
+    )
+    assert not any("rho sits on its bound" in w for w in inner.warnings)
+
+
+def test_every_start_reaches_the_known_optimum_of_an_exact_surface():
+    # quotes from known parameters: the global optimum is those parameters (RMSE 0 up to
+    # the certification), so a start that stops elsewhere has stopped early; with starts
+    # compared on a grid of the start's own (an earlier design) only 3 of 9 counted
+    p = HestonParams(0.035, 1.2, 0.05, 0.6, -0.7)
+    c = calibrate(surface(p), SPOT, RATE, DIV, workers=2)
+    assert c.starts == 9 and c.starts_at_best == 9
+    _check_round_trip(c, p)
+
+
 def test_multi_start_is_deterministic_and_counts_the_starts():
     quotes = surface(FELLER_OK, maturities=(0.25, 1.0, 2.0), n=7)
     a = calibrate(quotes, SPOT, RATE, DIV, starts=4, seed=7, workers=1)

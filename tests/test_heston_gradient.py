@@ -2,6 +2,7 @@
 
 import dataclasses
 
+import gradient_reference
 import numpy as np
 import pytest
 from hypothesis import given, settings
@@ -46,6 +47,30 @@ def test_log_cf_derivatives_match_central_differences():
         assert np.max(np.abs(fd - grad[j])) <= 1e-7 * np.max(np.abs(grad[j])), name
 
 
+def test_compiled_log_cf_gradient_equals_the_numpy_version():
+    # tests/gradient_reference.py: the numpy implementation the kernel replaced
+    u = np.linspace(0.0, 120.0, 61)
+    for t in (1 / 52, 0.5, 5.0):
+        lcf, grad = log_cf_gradient(u, P, t, 0.013)
+        ref_lcf, ref_grad = gradient_reference.log_cf_gradient(u, P, t, 0.013)
+        np.testing.assert_allclose(lcf, ref_lcf, rtol=1e-13, atol=1e-13)
+        for j in range(5):
+            scale = np.max(np.abs(ref_grad[j]))
+            assert np.max(np.abs(grad[j] - ref_grad[j])) <= 1e-13 * scale, PARAM_NAMES[j]
+
+
+def test_compiled_surface_sums_equal_the_numpy_version():
+    # tests/gradient_reference.py: the numpy COS sums (matrix products) the kernel replaced
+    k, t = (a.ravel() for a in _surface(P))
+    pricer = SurfacePricer(cos_grid(P, 100.0, k, t, 0.03, 0.01), 100.0, k, t, 0.03, 0.01)
+    price, grad = pricer.evaluate(P)
+    ref_price, ref_grad = gradient_reference.surface_evaluate(pricer, P)
+    np.testing.assert_allclose(price, ref_price, rtol=0, atol=1e-13)
+    for j in range(5):
+        scale = np.max(np.abs(ref_grad[:, j]))
+        assert np.max(np.abs(grad[:, j] - ref_grad[:, j])) <= 1e-12 * scale, PARAM_NAMES[j]
+
+
 def test_prices_equal_the_certified_prices():
     # rootvar.core.heston_price (certified to 1e-10 x spot) is the reference
     k, t = _surface(P)
@@ -86,23 +111,47 @@ def test_gradient_matches_central_differences_on_its_grid(
 ):
     # common practice, no source: five-point central differences (relative step 1e-3,
     # truncation error O(h^4)) of the price on the same fixed grid agree to 1e-6 relative
-    # to the largest entry of the strip's gradient in that parameter (floor 1e-2 currency
-    # per unit: the differences themselves carry some 3e-9 of rounding from the COS sums,
-    # measured at vol_of_vol 0.1, maturity 3, where that gradient is 2.6e-4)
+    # to the largest entry of the strip's gradient in that parameter.  The differences
+    # are taken of the same COS sum in extended precision (gradient_reference, 80-bit
+    # long double): in double precision the sums' rounding (some 1e-13) divided by the
+    # step leaves some 3e-9 of error in the difference quotient, which at vol_of_vol 0.1,
+    # maturity 3 (a gradient of 2.6e-4) is 1e-5 relative; in extended precision it is
+    # 2,000 times smaller.  The floor of 1e-6 currency per unit (1e-12 absolute) is for
+    # a gradient that is itself near zero, at the rounding of the double-precision
+    # gradient; where long double is only double (some platforms) it is 1e-2.
     p = HestonParams(v0, kappa, theta, vol_of_vol, rho)
     strike = 100.0 * np.exp(np.array(moneyness) * np.sqrt(theta * maturity))
     t = np.full(strike.shape, maturity)
     pricer = SurfacePricer(cos_grid(p, 100.0, strike, t, 0.02, 0.0), 100.0, strike, t, 0.02, 0.0)
     _, grad = pricer.evaluate(p)
-    for j, name in enumerate(PARAM_NAMES):
-        h = 1e-3 * max(abs(getattr(p, name)), 0.1)
+    values = np.array([getattr(p, name) for name in PARAM_NAMES], dtype=np.longdouble)
+    floor = 1e-6 if np.finfo(np.longdouble).eps < 1e-18 else 1e-2
+    for j in range(5):
+        h = np.longdouble(1e-3 * max(abs(float(values[j])), 0.1))
 
-        def price(step, name=name):
-            return pricer.evaluate(dataclasses.replace(p, **{name: getattr(p, name) + step}))[0]
+        def price(step, j=j):
+            moved = values.copy()
+            moved[j] += step
+            return gradient_reference.surface_prices_extended(pricer, moved)
 
         fd = (-price(2 * h) + 8 * price(h) - 8 * price(-h) + price(-2 * h)) / (12 * h)
-        scale = max(np.max(np.abs(grad[:, j])), 1e-2)
-        assert np.max(np.abs(fd - grad[:, j])) <= 1e-6 * scale, name
+        scale = max(np.max(np.abs(grad[:, j])), floor)
+        assert np.max(np.abs(fd.astype(float) - grad[:, j])) <= 1e-6 * scale, PARAM_NAMES[j]
+
+
+def test_extended_precision_prices_are_the_pricers_prices():
+    # the extended-precision reference sum equals the double-precision kernel to the
+    # latter's rounding, and both equal rootvar.core.heston_price (certified, 1e-10 x spot)
+    k, t = (a.ravel() for a in _surface(P))
+    pricer = SurfacePricer(cos_grid(P, 100.0, k, t, 0.03, 0.01), 100.0, k, t, 0.03, 0.01)
+    price, _ = pricer.evaluate(P)
+    put = price - np.where(pricer.call_side, pricer.parity, 0.0)
+    values = np.array([getattr(P, name) for name in PARAM_NAMES], dtype=np.longdouble)
+    extended = gradient_reference.surface_prices_extended(pricer, values).astype(float)
+    np.testing.assert_allclose(extended, put, rtol=0, atol=1e-12)
+    np.testing.assert_allclose(
+        extended, heston_price(P, 100.0, k, t, 0.03, 0.01, "put"), rtol=0, atol=1e-9
+    )
 
 
 def test_bad_input_is_refused():
