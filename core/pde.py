@@ -318,14 +318,14 @@ def pde_price(
     refine=True,
     tolerance=DEFAULT_TOLERANCE,
 ):
-    """Heston price of a European or single-barrier option by finite differences.
+    """Heston price of a European, single-barrier or digital option by finite differences.
 
     Parameters
     ----------
     params : HestonParams
     spot : float
         Spot price, > 0.
-    product : EuropeanOption or BarrierOption
+    product : EuropeanOption, BarrierOption or DigitalOption
     rate, div_yield : float
         Continuously compounded rate and dividend yield (decimals).
     grid : (int, int, int)
