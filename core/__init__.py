@@ -15,6 +15,7 @@ from .fourier import FourierDetails, heston_implied_vol, heston_price, heston_pr
 from .fourier_check import FourierCheckError, lewis_call_price
 from .fourier_exotics import FourierConvergenceError, forward_start_price, geometric_asian_price
 from .heston_gradient import heston_price_gradient
+from .mc_exotic import ExoticMCResult, mc_exotic
 from .mc_schemes import SCHEMES
 from .monte_carlo import BLOCK, DEFAULT_SEED, MCResult, expected_negative_step_fraction, mc_price
 from .params import HestonParams
@@ -78,6 +79,7 @@ __all__ = [
     "EulerWorstCase",
     "EuropeanOption",
     "ExoticComparison",
+    "ExoticMCResult",
     "ForwardStartOption",
     "FourierCheckError",
     "FourierConvergenceError",
@@ -113,6 +115,7 @@ __all__ = [
     "implied_vol_reason",
     "kernels_cached",
     "lewis_call_price",
+    "mc_exotic",
     "mc_price",
     "pde_price",
     "planning_paths",

@@ -15,7 +15,7 @@ import time
 import warnings
 from concurrent.futures import ThreadPoolExecutor
 
-from . import cos_kernels, mc_kernels
+from . import cos_kernels, mc_exotic_kernels, mc_kernels
 from .numba_setup import numba
 
 __all__ = [
@@ -33,6 +33,7 @@ KERNELS = (
     cos_kernels.cf_array,
     cos_kernels.log_cf_array,
     cos_kernels.fourier_sums,
+    mc_exotic_kernels.exotic_block,
 )
 
 
@@ -93,7 +94,17 @@ def compile_kernels() -> float:
                 p, 100.0, 100.0, 1.0, scheme=scheme, steps=2, paths=64, conditional=conditional
             )
     heston_price(p, 100.0, [90.0, 110.0], 1.0)
+    _compile_exotics(p)
     return time.perf_counter() - start
+
+
+def _compile_exotics(p) -> None:
+    """The exotic path kernel for every scheme kind (one signature: the product is data)."""
+    from .mc_exotic import mc_exotic
+    from .products import EuropeanOption
+
+    for scheme in ("euler_full", "qe", "qe_martingale", "exact_variance"):
+        mc_exotic(p, 100.0, EuropeanOption("call", 100.0, 1.0), scheme=scheme, steps=2, paths=64)
 
 
 _POOLS: dict = {}
