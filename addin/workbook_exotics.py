@@ -12,8 +12,9 @@ a formula the headless engine computes; the contracts are invented.
 from __future__ import annotations
 
 from openpyxl.chart import Reference, ScatterChart, Series
+from openpyxl.chart.shapes import GraphicalProperties
 from openpyxl.styles import Alignment, Font, PatternFill
-from openpyxl.utils import get_column_letter
+from openpyxl.worksheet.pagebreak import Break
 
 from .cli_text import CAUTION
 from .demo_desk import DESK_NAME, demo_models
@@ -121,9 +122,14 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
             cell.number_format = fmt
         if editable:
             cell.fill = _INPUT
-    ws["A22"] = "Shaded blue-grey: inputs. Tolerance: 0.1% of the spot by default."
-    ws["A23"] = "Scheme and steps: take them from the Step study sheet's recommendation."
-    ws["A22"].font = ws["A23"].font = _NOTE
+    notes = (
+        "Shaded blue-grey: inputs.",
+        "Tolerance: 0.1% of the spot by default.",
+        "Scheme and steps: as recommended",
+        "on the Step study sheet.",
+    )
+    for i, text in enumerate(notes):
+        ws.cell(row=22 + i, column=1, value=text).font = _NOTE
     market = "$B$12"
     rates = "$B$13,$B$14"
     run = "$B$15,$B$16,$B$17,$B$18"
@@ -210,17 +216,20 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
         r += 1
 
     _barrier_chart(ws, r + 1, block, market, rates, top)
-    for col, width in {"A": 26, "B": 12, "C": 3, "D": 36, "E": 26, "F": 26, "G": 26}.items():
+    widths = {"A": 26, "B": 12, "C": 3, "D": 36, "E": 26, "F": 26, "G": 26, "H": 12, "I": 14}
+    widths.update({"J": 12, "K": 12, "L": 12})
+    for col, width in widths.items():
         ws.column_dimensions[col].width = width
     _print_setup(ws)
 
 
 def _barrier_chart(ws, row: int, block: str, market: str, rates: str, top: int) -> None:
     """Barrier price against the barrier level, by Monte Carlo and by the PDE."""
-    ws.cell(row=row, column=1, value="Down-and-out call against the barrier level").font = _BOLD
-    headers = ("barrier", "Monte Carlo", "MC std error", "PDE", "PDE error estimate")
+    ws.row_breaks.append(Break(id=row - 1))  # the barrier study prints on its own page
+    ws.cell(row=row, column=4, value="Down-and-out call against the barrier level").font = _BOLD
+    headers = ("barrier", "Monte Carlo", "MC std error", "PDE", "PDE error estimate", "PDE status")
     for j, text in enumerate(headers):
-        cell = ws.cell(row=row + 1, column=1 + j, value=text)
+        cell = ws.cell(row=row + 1, column=4 + j, value=text)
         cell.font = _BOLD
         cell.alignment = Alignment(wrap_text=True, vertical="bottom")
     ws.row_dimensions[row + 1].height = 30
@@ -228,44 +237,94 @@ def _barrier_chart(ws, row: int, block: str, market: str, rates: str, top: int) 
     first = row + 2
     for i, level in enumerate(BARRIER_LEVELS):
         r = first + i
-        ws.cell(row=r, column=1, value=level).number_format = "0.00"
-        ws.cell(row=r, column=1).fill = _INPUT
-        mc_args = ",".join(f"$A{r}" if a == "barrier" else contract.get(a, "") for a in _ARG_ORDER)
+        level_cell = ws.cell(row=r, column=4, value=level)
+        level_cell.number_format, level_cell.fill = "0.00", _INPUT
+        level_cell.alignment = Alignment(horizontal="left")
+        mc_args = ",".join(f"$D{r}" if a == "barrier" else contract.get(a, "") for a in _ARG_ORDER)
         mc = (
             f"ROOTVAR_EXOTIC_PRICE({block},{market},{mc_args},{rates},$B$15,$B$16,"
             f"{CHART_PATHS},$B$18)"
         )
         pde = (
             f"ROOTVAR_PDE_PRICE({block},{market},{contract['strike']},{contract['maturity']},"
-            f"{contract['kind']},$A{r},{contract['direction']},{contract['knock']},,,{rates})"
+            f"{contract['kind']},$D{r},{contract['direction']},{contract['knock']},,,{rates})"
         )
-        for j, formula in enumerate(
-            (f"=INDEX({mc},1,2)", f"=INDEX({mc},2,2)", f"=INDEX({pde},1,2)", f"=INDEX({pde},2,2)")
-        ):
-            cell = ws.cell(row=r, column=2 + j, value=formula)
-            cell.number_format = _PRICE if j != 3 else "0.0E+00"
+        formulas = (
+            f"=INDEX({mc},1,2)",
+            f"=INDEX({mc},2,2)",
+            f"=INDEX({pde},1,2)",
+            f"=INDEX({pde},2,2)",
+            f"=INDEX({pde},3,2)",
+        )
+        for j, formula in enumerate(formulas):
+            cell = ws.cell(row=r, column=5 + j, value=formula)
+            cell.number_format = ("0.0000", "0.0000", "0.0000", "0.0E+00", "General")[j]
     last = first + len(BARRIER_LEVELS) - 1
-    ws.cell(row=last + 1, column=1, value=f"Monte Carlo points: {CHART_PATHS:,} paths each.")
-    ws.cell(row=last + 1, column=1).font = _NOTE
+    ws.cell(
+        row=last + 1,
+        column=4,
+        value=f"Monte Carlo points: {CHART_PATHS:,} paths each. A PDE price whose status is not "
+        "converged is not settled: its error estimate exceeds 0.1% of the spot.",
+    )
+    ws.cell(row=last + 1, column=4).font = _NOTE
 
+    # the gap between the methods against the Monte Carlo noise: the point of the check
+    extra = ("MC minus PDE", "+3 MC std errors", "-3 MC std errors")
+    for j, text in enumerate(extra):
+        cell = ws.cell(row=row + 1, column=10 + j, value=text)
+        cell.font = _BOLD
+        cell.alignment = Alignment(wrap_text=True, vertical="bottom")
+    for r in range(first, last + 1):
+        for j, formula in enumerate((f"=E{r}-G{r}", f"=3*F{r}", f"=-3*F{r}")):
+            ws.cell(row=r, column=10 + j, value=formula).number_format = "+0.0000;-0.0000;0.0000"
+
+    xs = Reference(ws, min_col=4, min_row=first, max_row=last)
+    prices = _scatter("Down-and-out call: price against the barrier", "barrier level", "price")
+    pde_series = Series(Reference(ws, min_col=7, min_row=first, max_row=last), xs, title="PDE")
+    _line(pde_series, "1F4E79", "solid")
+    prices.series.extend([pde_series, _dots(ws, 5, first, last, xs, "Monte Carlo")])
+    ws.add_chart(prices, f"D{last + 3}")
+
+    gap = _scatter("Monte Carlo minus PDE, with 3 std errors", "barrier level", "price difference")
+    gap.series.append(_dots(ws, 10, first, last, xs, "MC minus PDE"))
+    for col, title in ((11, "+3 std errors"), (12, "-3 std errors")):
+        band = Series(Reference(ws, min_col=col, min_row=first, max_row=last), xs, title=title)
+        _line(band, "7F7F7F", "dash")
+        gap.series.append(band)
+    ws.add_chart(gap, f"G{last + 3}")
+
+
+def _scatter(title: str, x_title: str, y_title: str) -> ScatterChart:
+    """A scatter chart with its axes set explicitly (shown in every spreadsheet program)."""
     chart = ScatterChart()
-    chart.title = "Down-and-out call: price against the barrier"
-    chart.x_axis.title, chart.y_axis.title = "barrier level", "price"
+    chart.title = title
+    chart.x_axis.title, chart.y_axis.title = x_title, y_title
     for axis in (chart.x_axis, chart.y_axis):
         axis.delete = False
         axis.majorTickMark = "out"
     chart.x_axis.tickLblPos = chart.y_axis.tickLblPos = "low"
     chart.x_axis.scaling.min, chart.x_axis.scaling.max = 25, 39
-    xs = Reference(ws, min_col=1, min_row=first, max_row=last)
-    mc_series = Series(Reference(ws, min_col=2, min_row=first, max_row=last), xs,
-                       title="Monte Carlo")  # fmt: skip
-    mc_series.marker.symbol, mc_series.marker.size = "circle", 8
-    mc_series.graphicalProperties.line.noFill = True
-    pde_series = Series(Reference(ws, min_col=4, min_row=first, max_row=last), xs, title="PDE")
-    pde_series.marker.symbol = "none"
-    pde_series.graphicalProperties.line.width = 22000
-    pde_series.smooth = False
-    chart.series.extend([pde_series, mc_series])
-    chart.height, chart.width = 8, 16
+    chart.x_axis.number_format = "0"
+    chart.y_axis.number_format = "0.00"
+    chart.height, chart.width = 8, 15
     chart.legend.position = "b"
-    ws.add_chart(chart, f"{get_column_letter(7)}{row}")
+    return chart
+
+
+def _line(series, colour: str, dash: str) -> None:
+    series.marker.symbol = "none"
+    series.graphicalProperties.line.solidFill = colour
+    series.graphicalProperties.line.dashStyle = dash
+    series.graphicalProperties.line.width = 22000
+    series.smooth = False
+
+
+def _dots(ws, col: int, first: int, last: int, xs, title: str) -> Series:
+    """Filled round markers, no line: Monte Carlo points."""
+    series = Series(Reference(ws, min_col=col, min_row=first, max_row=last), xs, title=title)
+    series.marker.symbol, series.marker.size = "circle", 7
+    series.marker.graphicalProperties = GraphicalProperties(solidFill="C55A11")
+    series.marker.graphicalProperties.line.solidFill = "C55A11"
+    series.graphicalProperties.line.noFill = True
+    series.smooth = False
+    return series

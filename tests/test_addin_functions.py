@@ -351,20 +351,20 @@ FO_BLOCK = [["v0", 0.0175], ["kappa", 1.5768], ["theta", 0.0398], ["vol_of_vol",
 FO = HestonParams(0.0175, 1.5768, 0.0398, 0.5751, -0.5711)
 
 
-def _exotic_args(product, **cells):
+def _exotic_args(product, check=False, **cells):
     names = ("kind", "strike", "maturity", "barrier", "direction", "knock", "rebate", "dates",
              "start", "strike_share", "cash", "rate", "div_yield", "scheme", "steps", "paths",
              "seed", "control", "tolerance", "z")  # fmt: skip
-    return [FO_BLOCK, 100.0, product, *[cells.get(n) for n in names]]
+    return [FO_BLOCK, 100.0, product, *[cells.get(n) for n in names[: 20 if check else 18]]]
 
 
 def test_exotic_price_spills_the_core_run_with_and_without_control():
     from rootvar.core import BarrierOption, mc_exotic
 
-    args = _exotic_args("down and out", strike=100.0, maturity=1.0, barrier=90.0)
-    assert call("ROOTVAR_EXOTIC_PRICE", *args[:20]).startswith(MARK)  # not a product word
+    args = _exotic_args("down and out", strike=100.0, maturity=1.0, barrier=90.0, paths=20_000)
+    assert call("ROOTVAR_EXOTIC_PRICE", *args).startswith(MARK)  # not a product word
     args[2] = "barrier"
-    rows = call("ROOTVAR_EXOTIC_PRICE", *args[:21], 20_000)
+    rows = call("ROOTVAR_EXOTIC_PRICE", *args)
     table = dict(rows)
     direct = mc_exotic(FO, 100.0, BarrierOption("call", 100.0, 1.0, 90.0, "down", "out"),
                        paths=20_000)  # fmt: skip
@@ -380,8 +380,8 @@ def test_exotic_price_spills_the_core_run_with_and_without_control():
 def test_exotic_check_gives_the_core_verdict():
     from rootvar.core import ForwardStartOption, compare_exotic
 
-    rows = call("ROOTVAR_EXOTIC_CHECK",
-                *_exotic_args("forward start", maturity=1.0, start=0.5, paths=20_000))  # fmt: skip
+    args = _exotic_args("forward start", True, maturity=1.0, start=0.5, paths=20_000)
+    rows = call("ROOTVAR_EXOTIC_CHECK", *args)
     table = dict(rows)
     direct = compare_exotic(FO, 100.0, ForwardStartOption("call", 0.5, 1.0, 1.0), paths=20_000)
     assert table["second method"] == "Fourier"
@@ -430,7 +430,7 @@ def test_exotic_cells_build_every_product():
     ],
 )  # fmt: skip
 def test_exotic_bad_input_is_marked_text(product, cells, fragment):
-    for name in ("ROOTVAR_EXOTIC_PRICE", "ROOTVAR_EXOTIC_CHECK"):
-        out = call(name, *_exotic_args(product, **cells))
+    for check, name in enumerate(("ROOTVAR_EXOTIC_PRICE", "ROOTVAR_EXOTIC_CHECK")):
+        out = call(name, *_exotic_args(product, bool(check), **cells))
         assert isinstance(out, str) and out.startswith(MARK), out
         assert fragment in out and "InputError" not in out, out
