@@ -739,6 +739,7 @@ def clear_cache() -> None:
         "_cached_tradeoff",
         "_cached_exotic",
         "_cached_exotic_check",
+        "_cached_pde",
     ):
         globals()[name].cache_clear()
 
@@ -780,6 +781,14 @@ def _pde_product(spot, strike, maturity, kind, barrier, direction, knock, rebate
         raise CellError(str(exc)) from exc
 
 
+@functools.lru_cache(maxsize=64)
+def _cached_pde(p, s, product, r, q, sizes):
+    """One solve per distinct input: a sheet reads a block's cells with INDEX one by one."""
+    from rootvar.core import pde_price
+
+    return pde_price(p, s, product, r, q, grid=sizes)
+
+
 @sheet_function(
     "table: label / value rows (price, error estimate, status, difference, delta, gamma, "
     "variance sensitivity, grid, time steps, seconds, note)",
@@ -814,7 +823,7 @@ def ROOTVAR_PDE_PRICE(
     grid=None,
 ):
     """European or barrier option price under Heston by finite differences, with its error."""
-    from rootvar.core import InputError, pde_price
+    from rootvar.core import InputError
     from rootvar.core.pde import DEFAULT_GRID
 
     p = to_params("params", params)
@@ -842,7 +851,7 @@ def ROOTVAR_PDE_PRICE(
             f"{MAX_PDE_WORK:,} for one cell"
         )
     try:
-        res = pde_price(p, s, product, r, q, grid=sizes)
+        res = _cached_pde(p, s, product, r, q, sizes)
     except InputError as exc:
         raise CellError(str(exc)) from exc
     return _pairs(
