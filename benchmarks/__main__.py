@@ -11,7 +11,16 @@ import sys
 
 from .timing import machine_line
 
-ALL = ["variance", "fourier", "monte_carlo", "kernels", "refresh", "pde", "calibration"]
+ALL = [
+    "variance",
+    "fourier",
+    "monte_carlo",
+    "kernels",
+    "refresh",
+    "pde",
+    "calibration",
+    "exotics",
+]
 
 
 def main(argv: list[str]) -> int:

@@ -52,7 +52,7 @@ __all__ = [
 #: Time steps per year when none are given.
 DEFAULT_STEPS_PER_YEAR = 64
 #: Paths of the pilot batch that fixes the control coefficient, by default.
-PILOT_PATHS = 2 * BLOCK
+PILOT_PATHS = BLOCK
 #: Spawn key of the pilot stream (main blocks have keys ``(j,)``, pilot blocks ``(PILOT_KEY, j)``).
 PILOT_KEY = 0x9E3779B9
 #: Accepted ``control`` values.
@@ -71,8 +71,10 @@ class ExoticMCResult:
     (the plain one when ``control`` is "none"); ``uncontrolled_price`` and
     ``uncontrolled_std_error`` come from the same main paths without the
     control; ``variance_reduction`` is the ratio of the two variances on
-    those paths.  ``steps`` is the total number of time steps of the grid,
-    ``paths`` the main paths (the pilot's are ``pilot_paths``).
+    those paths.  Without a control, ``control`` is "none", ``control_mean``
+    NaN, the coefficient 0 and the reduction 1.  ``steps`` is the total
+    number of time steps of the grid, ``paths`` the main paths (the pilot's
+    are ``pilot_paths``, 0 without a control).
     """
 
     price: float
@@ -317,7 +319,7 @@ def mc_exotic(
     seed=DEFAULT_SEED,
     antithetic=True,
     control="auto",
-    pilot_paths=PILOT_PATHS,
+    pilot_paths=None,
     chunk_paths=16 * BLOCK,
 ) -> ExoticMCResult:
     """Monte Carlo price of a barrier, Asian, forward-start, digital or European option.
@@ -347,9 +349,10 @@ def mc_exotic(
         the standard error is then over pair averages.
     control : {"auto", "none", "european", "geometric_asian", "forward_start"}
         Control variate (see Notes).
-    pilot_paths : int
+    pilot_paths : int or None
         Paths of the independent pilot batch that fixes the control
-        coefficient (default 8,192); unused without a control.
+        coefficient; default the smaller of :data:`PILOT_PATHS` (4,096, one
+        block) and ``paths``.  Unused without a control.
     chunk_paths : int
         Paths handed to the threads at once; bounds memory and never
         changes the result.
@@ -396,7 +399,9 @@ def mc_exotic(
     **Control variates.**  With a control ``C`` of known mean ``mu`` the
     estimate is ``mean(Y) - b (mean(C) - mu)``; ``b`` is estimated on an
     independent pilot batch and fixed before the main run, so the main
-    estimator stays unbiased (Glasserman 2004, section 4.1.2).  Controls:
+    estimator stays unbiased (Glasserman 2004, section 4.1: a coefficient
+    estimated on the main paths themselves biases the estimate in small
+    samples).  Controls:
 
     * "european": the vanilla with the product's kind, strike and maturity
       on the same paths, ``mu`` = :func:`rootvar.core.heston_price`; for a
@@ -441,6 +446,8 @@ def mc_exotic(
     check_choice("control", control, CONTROLS)
     steps_per_year = DEFAULT_STEPS_PER_YEAR if steps is None else as_positive_int("steps", steps)
     paths = as_positive_int("paths", paths)
+    if pilot_paths is None:
+        pilot_paths = min(PILOT_PATHS, paths)
     pilot_paths = as_positive_int("pilot_paths", pilot_paths)
     chunk_paths = as_positive_int("chunk_paths", chunk_paths)
     if isinstance(seed, (bool, np.bool_)) or not isinstance(seed, (int, np.integer)) or seed < 0:

@@ -60,6 +60,8 @@ NONE, VANILLA, ARITHMETIC, GEOMETRIC, FORWARD, DIGITAL, SAME = 0, 1, 2, 3, 4, 5,
     P_REBATE,
 ) = range(10)
 PAY_SIZE = 10
+#: Past this exponent ``p = e^{-x} < 2^-54`` and ``1 - p`` is exactly 1 in double precision.
+_FAR = 38.0
 
 
 @njit(cache=True, inline="always")
@@ -145,7 +147,7 @@ def exotic_block(
     Continuous barrier, per step with log-price end points ``x0, x1`` on the
     live side at distances ``d0, d1`` from the log barrier and step variance
     ``dI``, the probability that the bridge crosses is
-    ``exp(-2 d0 d1 / dI)`` (Glasserman 2004, section 6.4, eq. 6.50;
+    ``exp(-2 d0 d1 / dI)`` (Glasserman 2004, section 6.4;
     Beaglehole, Dybvig & Zhou 1997); a step ending on the knock side has
     crossed.  The path's survival weight is the product of ``1 - p`` over
     the steps, and a knock-out rebate is paid with the weight lost in a
@@ -254,9 +256,9 @@ def exotic_block(
                     d0 = side * (start - log_b)
                     if d0 <= 0.0 or d1 <= 0.0:
                         keep = 0.0
-                    elif d_int > 0.0:
+                    elif 2.0 * d0 * d1 < _FAR * d_int:
                         keep = 1.0 - math.exp(-2.0 * d0 * d1 / d_int)
-                    else:
+                    else:  # 1 - p rounds to 1 exactly: skip the exp (also d_int = 0)
                         keep = 1.0
                     lost = alive[i] * (1.0 - keep)
                     alive[i] -= lost
