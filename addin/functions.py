@@ -1224,7 +1224,7 @@ def ROOTVAR_EXOTIC_PRICE(
     "table: label / value rows: both prices, the second method and its error, the "
     "difference, the band, the verdict, paths to settle and the reason",
     **_EXOTIC_DOCS,
-    tolerance="tolerance in price, > 0 (empty: 0.1% of the spot)",
+    tolerance="tolerance in price, > 0 (empty: 0.1% of the spot; a digital's 1% of its cash)",
     z=f"band width in standard errors (empty: {DEFAULT_Z:g})",
 )
 def ROOTVAR_EXOTIC_CHECK(
@@ -1240,14 +1240,12 @@ def ROOTVAR_EXOTIC_CHECK(
     reference Monte Carlo run (exact variance sampling, independent seed) for
     arithmetic Asians.
     """
-    from rootvar.core.exotic_check import DEFAULT_TOLERANCE_SHARE
-
     key, run = _exotic_inputs(
         params, spot, product, kind, strike, maturity, barrier, direction, knock, rebate,
         dates, start, strike_share, cash, rate, div_yield, scheme, steps, paths, seed, control,
         checking=True,
     )  # fmt: skip
-    tol = to_number("tolerance", tolerance, ">0", default=DEFAULT_TOLERANCE_SHARE * key[1])
+    tol = None if _empty(tolerance) else to_number("tolerance", tolerance, ">0")
     width = to_number("z", z, ">0", default=DEFAULT_Z)
     c = _cached_exotic_check(key, tol, width)
     reason = c.reason

@@ -42,6 +42,7 @@ from .validation import InputError, as_float_array, as_positive_int, check_choic
 from .verdict import BIASED, CONSISTENT, DEFAULT_Z, PLANNING_SHARE, UNDECIDED, planning_paths
 
 __all__ = [
+    "DEFAULT_DIGITAL_TOLERANCE_SHARE",
     "DEFAULT_EXOTIC_PATHS",
     "DEFAULT_EXOTIC_SCHEME",
     "DEFAULT_TOLERANCE_SHARE",
@@ -56,6 +57,11 @@ __all__ = [
 #: no source), and at the default paths the controlled Monte Carlo band of
 #: 3 standard errors fits inside it with room for the second method's error.
 DEFAULT_TOLERANCE_SHARE = 1e-3
+#: Default tolerance of a digital's check, as a share of its cash: a digital is quoted
+#: as a share of what it pays, with a bid-offer of a few per cent of it (its hedge is
+#: a tight call spread; common practice, no source).  0.1% of the spot would be a
+#: sixth of an at-the-money digital paying 1 on a spot of 100.
+DEFAULT_DIGITAL_TOLERANCE_SHARE = 1e-2
 #: Default Monte Carlo scheme of the check (see :func:`compare_exotic`, Notes).
 DEFAULT_EXOTIC_SCHEME = "qe"
 #: Default paths of the check (antithetic, control variate on).
@@ -394,7 +400,9 @@ def compare_exotic(
         paths, control variate chosen by product).
     tolerance : float, optional
         Tolerance in price (currency units), > 0.  Default
-        :data:`DEFAULT_TOLERANCE_SHARE` x spot (0.1% of the spot).
+        :data:`DEFAULT_TOLERANCE_SHARE` x spot (0.1% of the spot); for a
+        digital :data:`DEFAULT_DIGITAL_TOLERANCE_SHARE` x cash (1% of what
+        it pays).
     z : float
         Band width in Monte Carlo standard errors, > 0 (default 3).
     study : bool
@@ -484,11 +492,15 @@ def compare_exotic(
     rate = _scalar("rate", rate)
     div_yield = _scalar("div_yield", div_yield)
     z = _scalar("z", z, ">0")
-    tol = (
-        DEFAULT_TOLERANCE_SHARE * spot
-        if tolerance is None
-        else _scalar("tolerance", tolerance, ">0")
-    )
+    if tolerance is not None:
+        tol = _scalar("tolerance", tolerance, ">0")
+        scale = f"{tol / spot:.3%} of spot"
+    elif isinstance(product, DigitalOption):
+        tol = DEFAULT_DIGITAL_TOLERANCE_SHARE * product.cash
+        scale = f"{DEFAULT_DIGITAL_TOLERANCE_SHARE:.0%} of the cash"
+    else:
+        tol = DEFAULT_TOLERANCE_SHARE * spot
+        scale = f"{tol / spot:.3%} of spot"
     if scheme is not None:
         check_choice("scheme", scheme, tuple(SCHEMES))
     if steps is not None:
@@ -549,16 +561,15 @@ def compare_exotic(
             "seed": _reference_seed(mc.seed),
         },
     )
-    return _compare(mc, second, tol, z, spot, source)
+    return _compare(mc, second, tol, z, scale, source)
 
 
-def _compare(mc, second, tol, z, spot, source) -> ExoticComparison:
+def _compare(mc, second, tol, z, scale, source) -> ExoticComparison:
     """The verdict of one Monte Carlo run against one second price."""
     se_mc = float(mc.std_error)
     d = float(mc.price) - second.price if second.usable else math.nan
     se_2 = second.error if second.error_kind == STANDARD_ERROR else 0.0
     bound = second.error if second.error_kind == BOUND else 0.0
-    share = f"{tol / spot:.3%} of spot" if spot else ""
     name = second.method
     if not second.usable:
         verdict, stat, half, settle = UNDECIDED, math.nan, math.nan, -1
@@ -571,7 +582,7 @@ def _compare(mc, second, tol, z, spot, source) -> ExoticComparison:
             else (f" (with the {name}'s std error {se_2:.3g})" if se_2 > 0 else "")
         )
         band = f"MC - {name} = {d:+.6g} +- {z:g} x {stat:.3g}{err}"
-        where = f"the tolerance {tol:.4g} ({share})"
+        where = f"the tolerance {tol:.4g} ({scale})"
         settle = 0
         if verdict == CONSISTENT:
             reason = f"{band} lies within {where}"

@@ -21,7 +21,12 @@ from rootvar.core import (
     exotic_check,
     planning_paths,
 )
-from rootvar.core.exotic_check import DEFAULT_TOLERANCE_SHARE, _settle, _verdict
+from rootvar.core.exotic_check import (
+    DEFAULT_DIGITAL_TOLERANCE_SHARE,
+    DEFAULT_TOLERANCE_SHARE,
+    _settle,
+    _verdict,
+)
 
 #: Fang & Oosterlee (2008), SIAM J. Sci. Comput. 31(2), Heston test case.
 FO = HestonParams(v0=0.0175, kappa=1.5768, theta=0.0398, vol_of_vol=0.5751, rho=-0.5711)
@@ -77,8 +82,12 @@ def test_fo_arithmetic_asian_is_consistent_with_the_reference_run():
 
 
 def test_fo_digital_is_consistent_with_the_pde():
-    c = compare_exotic(FO, 100.0, DigitalOption("call", 100.0, 1.0), seed=13)
+    # a digital's default tolerance is 1% of its cash, not 0.1% of the spot (common practice,
+    # no source): here 0.05 for a digital paying 5
+    c = compare_exotic(FO, 100.0, DigitalOption("call", 100.0, 1.0, cash=5.0), seed=13)
     assert c.second_method == "PDE"
+    assert c.tolerance == pytest.approx(DEFAULT_DIGITAL_TOLERANCE_SHARE * 5.0)
+    assert "1% of the cash" in c.reason
     _consistent(c)
 
 
