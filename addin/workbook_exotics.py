@@ -13,20 +13,16 @@ from __future__ import annotations
 
 from openpyxl.chart import Reference, ScatterChart, Series
 from openpyxl.chart.shapes import GraphicalProperties
-from openpyxl.styles import Alignment, Font, PatternFill
+from openpyxl.styles import Alignment
 from openpyxl.worksheet.pagebreak import Break
 
-from .cli_text import CAUTION
 from .demo_desk import DESK_NAME, demo_models
+from .workbook_build import _BOLD, _INPUT, _NOTE, LINE_HEIGHT, _axes, _heading, _print_setup
 
 __all__ = ["BARRIER_LEVELS", "PRODUCTS", "SHEET", "add_exotics_sheet"]
 
 SHEET = "Exotics"
 _MODEL = "CRV-SHP"
-_TITLE = Font(bold=True, size=13)
-_BOLD = Font(bold=True)
-_NOTE = Font(italic=True, size=9, color="555555")
-_INPUT = PatternFill("solid", fgColor="EEF2F5")  # pale blue-grey: cells a user may change
 _PRICE = "0.0000"
 
 #: Contract rows (label, ROOTVAR_EXOTIC_* argument) and the three invented contracts.
@@ -65,20 +61,6 @@ def _model():
     return next(m for m in demo_models() if m.model_id == _MODEL)
 
 
-def _fmt(ws, ref: str, fmt: str) -> None:
-    ws[ref].number_format = fmt
-
-
-def _print_setup(ws) -> None:
-    """Landscape, one page wide, as the other sheets of the workbook."""
-    ws.page_setup.orientation = "landscape"
-    ws.page_setup.paperSize = ws.PAPERSIZE_A4
-    ws.page_setup.fitToWidth = 1
-    ws.page_setup.fitToHeight = 0
-    ws.sheet_properties.pageSetUpPr.fitToPage = True
-    ws.print_options.gridLines = False
-
-
 def _contract_args(col: str, first_row: int) -> str:
     """The product arguments of ROOTVAR_EXOTIC_* read from one contract column."""
     rows = {arg: first_row + i for i, (_, arg) in enumerate(CONTRACT_ROWS)}
@@ -89,9 +71,7 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
     """Append the exotics sheet; the model and market come from the *Price twice* sheet."""
     m = _model()
     ws = wb.create_sheet(SHEET)
-    ws["A1"] = f"{DESK_NAME}: {m.underlying} exotics priced twice (invented contracts)"
-    ws["A2"] = CAUTION
-    ws["A1"].font, ws["A2"].font = _TITLE, _NOTE
+    _heading(ws, f"{DESK_NAME}: {m.underlying} exotics priced twice (invented contracts)")
     pt = f"'{price_twice}'"
 
     ws["A4"] = "Model (from Price twice)"
@@ -178,42 +158,36 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
         ("paths to settle", 12, "#,##0"),
         ("reason", 13, None),
     )
+    blocks = (
+        ("Monte Carlo", price_rows, "ROOTVAR_EXOTIC_PRICE({args},{run})"),
+        (
+            "Second method and verdict",
+            check_rows,
+            "ROOTVAR_EXOTIC_CHECK({args},{run},,$B$19,$B$20)",
+        ),
+    )
     r = top + len(CONTRACT_ROWS) + 1
-    ws.cell(row=r, column=4, value="Monte Carlo").font = _BOLD
-    r += 1
-    for label, k, fmt in price_rows:
-        ws.cell(row=r, column=4, value=label)
-        for col in cols:
-            args = _contract_args(col, top)
-            cell = ws[f"{col}{r}"]
-            cell.value = (
-                f"=INDEX(ROOTVAR_EXOTIC_PRICE({block},{market},{args},{rates},{run}),{k},2)"
-            )
-            if fmt:
-                cell.number_format = fmt
+    for title, rows, call in blocks:
+        ws.cell(row=r, column=4, value=title).font = _BOLD
         r += 1
-    r += 1
-    ws.cell(row=r, column=4, value="Second method and verdict").font = _BOLD
-    r += 1
-    for label, k, fmt in check_rows:
-        ws.cell(row=r, column=4, value=label)
-        for col in cols:
-            args = _contract_args(col, top)
-            cell = ws[f"{col}{r}"]
-            cell.value = (
-                f"=INDEX(ROOTVAR_EXOTIC_CHECK({block},{market},{args},{rates},{run},,"
-                f"$B$19,$B$20),{k},2)"
-            )
-            if fmt:
-                cell.number_format = fmt
-            if label == "verdict":
-                cell.font = _BOLD
+        for label, k, fmt in rows:
+            ws.cell(row=r, column=4, value=label)
+            for col in cols:
+                args = f"{block},{market},{_contract_args(col, top)},{rates}"
+                cell = ws[f"{col}{r}"]
+                cell.value = f"=INDEX({call.format(args=args, run=run)},{k},2)"
+                if fmt:
+                    cell.number_format = fmt
+                if label == "verdict":
+                    cell.font = _BOLD
+                if label == "reason":
+                    cell.alignment = Alignment(wrap_text=True, vertical="top")
             if label == "reason":
-                cell.alignment = Alignment(wrap_text=True, vertical="top")
-        if label == "reason":
-            ws.row_dimensions[r].height = 15 * 9
-            ws.cell(row=r, column=4).alignment = Alignment(vertical="top")
+                ws.row_dimensions[r].height = LINE_HEIGHT * 9
+                ws.cell(row=r, column=4).alignment = Alignment(vertical="top")
+            r += 1
         r += 1
+    r -= 1
 
     _barrier_chart(ws, r + 1, block, market, rates, top)
     widths = {"A": 26, "B": 12, "C": 3, "D": 36, "E": 26, "F": 26, "G": 26, "H": 12, "I": 14}
@@ -298,11 +272,7 @@ def _scatter(title: str, x_title: str, y_title: str) -> ScatterChart:
     """A scatter chart with its axes set explicitly (shown in every spreadsheet program)."""
     chart = ScatterChart()
     chart.title = title
-    chart.x_axis.title, chart.y_axis.title = x_title, y_title
-    for axis in (chart.x_axis, chart.y_axis):
-        axis.delete = False
-        axis.majorTickMark = "out"
-    chart.x_axis.tickLblPos = chart.y_axis.tickLblPos = "low"
+    _axes(chart, x_title, y_title)
     chart.x_axis.scaling.min, chart.x_axis.scaling.max = 25, 39
     chart.x_axis.number_format = "0"
     chart.y_axis.number_format = "0.00"
