@@ -102,8 +102,8 @@ class SecondPrice:
     error_kind : str
         "bound", "standard error" or "" (no price).
     status : str
-        "converged", "certified", "already knocked", "not converged" or
-        "not certified".
+        "converged", "already knocked" or "not converged" (PDE),
+        "certified" or "not certified" (Fourier), "simulated" (reference run).
     usable : bool
         Whether a verdict may be built on ``price``.
     detail : str
@@ -259,11 +259,8 @@ def second_price(
     if isinstance(product, ForwardStartOption) or (
         isinstance(product, AsianOption) and product.average == "geometric"
     ):
-        pricer = (
-            forward_start_price
-            if isinstance(product, ForwardStartOption)
-            else (geometric_asian_price)
-        )
+        forward = isinstance(product, ForwardStartOption)
+        pricer = forward_start_price if forward else geometric_asian_price
         try:
             price = float(pricer(params, spot, product, rate, div_yield))
         except FourierConvergenceError as exc:
@@ -294,7 +291,7 @@ def second_price(
             control="european",
         )
         return SecondPrice(
-            REFERENCE_MC, run.price, run.std_error, STANDARD_ERROR, "converged", True,
+            REFERENCE_MC, run.price, run.std_error, STANDARD_ERROR, "simulated", True,
             f"reference Monte Carlo: exact variance sampling, {run.steps} steps in all, "
             f"{run.paths:,} paths, control {run.control}, independent seed {run.seed}",
             run,
@@ -324,8 +321,10 @@ def _settle(paths, se_mc, se_2, bound, tol, z):
     ``sqrt((tol - bound)^2 - ((z + q) se_2)^2) / (z + q)``.
     """
     q = float(norm.ppf(0.5 * (1.0 + PLANNING_SHARE)))
+    if tol <= bound or se_mc <= 0:
+        return -1
     room = (tol - bound) ** 2 - ((z + q) * se_2) ** 2
-    if room <= 0 or se_mc <= 0:
+    if room <= 0:
         return -1
     return int(planning_paths(paths, se_mc, math.sqrt(room), z))
 

@@ -75,6 +75,7 @@ def test_fo_arithmetic_asian_is_consistent_with_the_reference_run():
     ref = c.second.result
     assert ref.scheme == "exact_variance" and ref.control == "european"
     assert ref.seed != c.mc.seed
+    assert c.second_status == "simulated"
     assert ref.steps >= c.mc.steps
     assert ref.std_error < 0.015
     assert c.combined_error == pytest.approx(math.hypot(c.mc.std_error, ref.std_error))
@@ -143,6 +144,7 @@ def test_paths_to_settle_account_for_the_second_methods_error():
     assert _settle(10_000, 0.02, 0.0, 0.05, 0.1, 3.0) > _settle(10_000, 0.02, 0.0, 0.0, 0.1, 3.0)
     # an error the size of the tolerance leaves no room at any count
     assert _settle(10_000, 0.02, 0.0, 0.1, 0.1, 3.0) == -1
+    assert _settle(10_000, 0.02, 0.0, 0.3, 0.1, 3.0) == -1  # a bound past the tolerance
     assert _settle(10_000, 0.02, 0.03, 0.0, 0.1, 3.0) == -1  # (3 + 1.645) x 0.03 > 0.1
 
 
