@@ -204,3 +204,13 @@ def test_a_european_is_checked_against_the_pde():
     c = compare_exotic(FO, 100.0, EuropeanOption("put", 100.0, 1.0), seed=10, tolerance=0.2)
     assert c.second_method == "PDE"
     _consistent(c)
+
+
+def test_the_check_depends_only_on_its_inputs_and_seed():
+    # reproducibility (README, "Monte Carlo"): the reference run's seed is derived from the
+    # check's, so an arithmetic Asian's whole check repeats exactly
+    a = compare_exotic(FO, 100.0, ARITHMETIC, seed=21, paths=20_000, reference_paths=20_000)
+    b = compare_exotic(FO, 100.0, ARITHMETIC, seed=21, paths=20_000, reference_paths=20_000)
+    assert (a.mc.price, a.second_price, a.reason) == (b.mc.price, b.second_price, b.reason)
+    c = compare_exotic(FO, 100.0, ARITHMETIC, seed=22, paths=20_000, reference_paths=20_000)
+    assert c.second.result.seed != a.second.result.seed and c.second_price != a.second_price
