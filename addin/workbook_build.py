@@ -522,6 +522,9 @@ def build_price_twice(path: Path) -> None:
     _widths(st, {"A": 28, "B": 14})
     st.freeze_panes = "A8"
     _print_setup(st, "7:7")
+    from .workbook_exotics import add_exotics_sheet
+
+    add_exotics_sheet(wb)
     path.parent.mkdir(parents=True, exist_ok=True)
     save_deterministic(wb, path)
 

@@ -10,6 +10,7 @@ from .black_scholes import bs_price, implied_vol, implied_vol_reason
 from .calibration import Calibration, calibrate, calibration_tradeoff
 from .cir_law import TINY_VARIANCE, cir_stationary, cir_transition, cir_transition_shapes
 from .compiled import CompileNotice, compile_kernels, kernels_cached
+from .exotic_check import ExoticComparison, compare_exotic
 from .fourier import FourierDetails, heston_implied_vol, heston_price, heston_price_details
 from .fourier_check import FourierCheckError, lewis_call_price
 from .fourier_exotics import FourierConvergenceError, forward_start_price, geometric_asian_price
@@ -77,6 +78,7 @@ __all__ = [
     "DigitalOption",
     "EulerWorstCase",
     "EuropeanOption",
+    "ExoticComparison",
     "ExoticMCResult",
     "ForwardStartOption",
     "FourierCheckError",
@@ -95,6 +97,7 @@ __all__ = [
     "cir_stationary",
     "cir_transition",
     "cir_transition_shapes",
+    "compare_exotic",
     "compare_mc_fourier",
     "compile_kernels",
     "euler_max_step",

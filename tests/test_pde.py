@@ -521,3 +521,33 @@ def test_refinement_rules():
     # differences that do not shrink: both are counted
     _, error, order, extrapolated = _refinement((1.0, 1.1, 1.0), SPOT)
     assert math.isnan(order) and not extrapolated and error == pytest.approx(0.2)
+
+
+# ------------------------------------------------------------------ digitals
+
+
+@pytest.mark.parametrize("kind", ["call", "put"])
+@pytest.mark.parametrize("strike", [90.0, 100.0, 110.0])
+def test_pde_digital_matches_the_strike_derivative_of_fourier_prices(kind, strike):
+    # A cash-or-nothing call pays 1{S_T > K}: its price is -dC/dK (Breeden & Litzenberger
+    # 1978), here a central difference of certified COS calls with h = 1e-3 K (error
+    # O(h^2) ~ 1e-8); the put is e^{-rT} minus the call.
+    from rootvar.core import DigitalOption
+
+    h = 1e-3 * strike
+    up, down = heston_price(FO, 100.0, [strike - h, strike + h], 1.0, 0.02, 0.01, "call")
+    call = (up - down) / (2 * h)
+    ref = call if kind == "call" else math.exp(-0.02) - call
+    res = pde_price(FO, 100.0, DigitalOption(kind, strike, 1.0), 0.02, 0.01)
+    assert res.status == "converged"
+    assert abs(res.price - ref) <= max(2 * res.error_estimate, 1e-4)
+    assert res.error_estimate < 5e-4
+
+
+def test_cash_scales_the_pde_digital():
+    # linearity of the price in the paid amount (common practice, no source)
+    from rootvar.core import DigitalOption
+
+    one = pde_price(FO, 100.0, DigitalOption("call", 100.0, 1.0)).price
+    many = pde_price(FO, 100.0, DigitalOption("call", 100.0, 1.0, cash=25.0)).price
+    assert many == pytest.approx(25.0 * one, rel=1e-12)

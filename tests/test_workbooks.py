@@ -278,3 +278,88 @@ def test_every_step_dependent_header_states_the_step(computed):
     assert len(euler) == 4 and all("1 trading day" in h for h in euler)
     pt = computed[PRICE_TWICE][1]["Price twice"]
     assert "step 7.88 trading days" in pt["D8"].value and "7.88" in pt["D18"].value
+
+
+# ------------------------------------------------------------------------------ exotics sheet
+
+
+def _by_label(ws, col=4, first=5, last=40):
+    """Row number of each label in column D of the exotics sheet."""
+    return {ws.cell(row=r, column=col).value: r for r in range(first, last)}
+
+
+def test_exotics_sheet_agrees_with_the_core(computed):
+    # the sheet's numbers are the core's for the same inputs (deterministic seeds); the
+    # second methods are the PDE, the reference run and the certified Fourier price
+    from rootvar.addin.workbook_exotics import BARRIER_LEVELS, SHEET
+    from rootvar.core import (
+        AsianOption,
+        BarrierOption,
+        ForwardStartOption,
+        compare_exotic,
+        forward_start_price,
+        pde_price,
+    )
+
+    ws = computed[PRICE_TWICE][1][SHEET]
+    m = next(m for m in demo_models() if m.model_id == "CRV-SHP")
+    rows = _by_label(ws)
+    monthly = tuple((j + 1) / 12 for j in range(12))
+    products = (
+        BarrierOption("call", 40.0, 1.0, 34.0, "down", "out"),
+        AsianOption("call", 40.0, monthly),
+        ForwardStartOption("call", 0.5, 1.0, 1.0),
+    )
+    for col, product, method in zip(
+        "EFG", products, ("PDE", "reference Monte Carlo", "Fourier"), strict=True
+    ):
+        c = compare_exotic(m.params, m.spot, product, m.rate, m.div_yield, seed=20240601)
+        # a saved workbook keeps 15 significant digits
+        same = {"rel": 1e-14}
+        value = ws[f"{col}{rows['Monte Carlo price, with control variate']}"].value
+        assert value == pytest.approx(c.mc.price, **same)
+        value = ws[f"{col}{rows['Monte Carlo price, without control']}"].value
+        assert value == pytest.approx(c.mc.uncontrolled_price, **same)
+        assert ws[f"{col}{rows['variance reduction (x)']}"].value > 1.0
+        assert ws[f"{col}{rows['second method']}"].value == method
+        assert ws[f"{col}{rows['second price']}"].value == pytest.approx(c.second_price, **same)
+        # the shipped example ends with an answer, as the vanilla's does
+        assert ws[f"{col}{rows['verdict']}"].value == "consistent"
+        assert ws[f"{col}{rows['reason']}"].value == c.reason
+    fwd = forward_start_price(m.params, m.spot, products[2], m.rate, m.div_yield)
+    assert ws[f"G{rows['second price']}"].value == pytest.approx(fwd, rel=1e-14)
+    # the barrier table: one row per level, the PDE column is pde_price's
+    table = next(r for r in range(30, 60) if ws.cell(row=r, column=4).value == "barrier") + 1
+    levels = [ws.cell(row=table + i, column=4).value for i in range(len(BARRIER_LEVELS))]
+    assert levels == list(BARRIER_LEVELS)
+    at = BARRIER_LEVELS.index(34.0)
+    direct = pde_price(m.params, m.spot, products[0], m.rate, m.div_yield)
+    assert ws.cell(row=table + at, column=7).value == pytest.approx(direct.price, rel=1e-14)
+    assert ws.cell(row=table + at, column=9).value == direct.status
+    assert len(ws._charts) == 2
+
+
+def test_exotics_sheet_looks_right():
+    from rootvar.addin.workbook_exotics import SHEET
+
+    ws = _template(PRICE_TWICE)[SHEET]
+    rows = _by_label(ws)
+    for col in "EFG":
+        assert (
+            ws[f"{col}{rows['Monte Carlo price, with control variate']}"].number_format
+            == (FORMATS["price"])
+        )
+        assert ws[f"{col}{rows['reason']}"].alignment.wrap_text
+        assert ws[f"{col}4"].alignment.wrap_text  # contract titles wrap in their column
+    assert ws.page_setup.orientation == "landscape" and int(ws.page_setup.fitToWidth) == 1
+    # the barrier table's headers fit their columns (the width rule of workbook_build)
+    header = next(r for r in range(30, 60) if ws.cell(row=r, column=4).value == "barrier")
+    height = ws.row_dimensions[header].height
+    for col in range(4, 13):
+        text = ws.cell(row=header, column=col).value
+        width = ws.column_dimensions[get_column_letter(col)].width
+        assert all(len(w) <= width - 1 for w in text.split()), (text, width)
+        assert height >= LINE_HEIGHT * len(header_lines(text, width)), (text, width)
+    for chart in ws._charts:
+        assert chart.x_axis.delete is False and chart.y_axis.delete is False
+        assert chart.x_axis.title is not None and chart.y_axis.title is not None
