@@ -205,7 +205,11 @@ def _barrier_chart(ws, row: int, block: str, market: str, rates: str, top: int) 
     for j, text in enumerate(headers):
         cell = ws.cell(row=row + 1, column=4 + j, value=text)
         cell.font = _BOLD
-        cell.alignment = Alignment(wrap_text=True, vertical="bottom")
+        # numbers sit at the right of these wide columns: so do their headers
+        side = "left" if j == 0 or text == "PDE status" else "right"
+        cell.alignment = Alignment(
+            wrap_text=True, vertical="bottom", horizontal=side, indent=int(j == 5)
+        )
     ws.row_dimensions[row + 1].height = 30
     contract = {arg: f"$E${top + i}" for i, (_, arg) in enumerate(CONTRACT_ROWS)}
     first = row + 2
@@ -233,6 +237,8 @@ def _barrier_chart(ws, row: int, block: str, market: str, rates: str, top: int) 
         for j, formula in enumerate(formulas):
             cell = ws.cell(row=r, column=5 + j, value=formula)
             cell.number_format = ("0.0000", "0.0000", "0.0000", "0.0E+00", "General")[j]
+            if j == 4:  # the status text, set off from the number before it
+                cell.alignment = Alignment(horizontal="left", indent=1)
     last = first + len(BARRIER_LEVELS) - 1
     ws.cell(
         row=last + 1,
@@ -247,7 +253,7 @@ def _barrier_chart(ws, row: int, block: str, market: str, rates: str, top: int) 
     for j, text in enumerate(extra):
         cell = ws.cell(row=row + 1, column=10 + j, value=text)
         cell.font = _BOLD
-        cell.alignment = Alignment(wrap_text=True, vertical="bottom")
+        cell.alignment = Alignment(wrap_text=True, vertical="bottom", horizontal="right")
     for r in range(first, last + 1):
         for j, formula in enumerate((f"=E{r}-G{r}", f"=3*F{r}", f"=-3*F{r}")):
             ws.cell(row=r, column=10 + j, value=formula).number_format = "+0.0000;-0.0000;0.0000"
