@@ -140,7 +140,7 @@ def add_calibration_sheet(wb) -> None:
     trade_top = 26
     ws.cell(row=trade_top - 1, column=5, value="trade-off: what the constraint costs and buys")
     ws.cell(row=trade_top - 1, column=5).font = _BOLD
-    _array(ws, f"E{trade_top}", 17, 4, f"=ROOTVAR_FELLER_TRADEOFF({q},{market},$B$7,$B$8)")
+    _array(ws, f"E{trade_top}", 18, 4, f"=ROOTVAR_FELLER_TRADEOFF({q},{market},$B$7,$B$8)")
 
     res_top = 48
     n = len(quotes)
@@ -151,7 +151,7 @@ def add_calibration_sheet(wb) -> None:
     # spilled values take the formats of the cells they land in: no raw 15-digit numbers
     _formats(ws, "F5", _STATS_ROWS, 1, _SHORT)
     _formats(ws, "I5", _STATS_ROWS, 1, _SHORT)
-    _formats(ws, f"E{trade_top + 1}", 16, 4, _SHORT)
+    _formats(ws, f"E{trade_top + 1}", 17, 4, _SHORT)
     residual_formats = ("0.0000", "#,##0", "0.00%", "0.00%", "+0.0;-0.0;0.0", "0.00")
     for first in ("E", "L"):
         col = ws[f"{first}{res_top}"].column

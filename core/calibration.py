@@ -797,6 +797,11 @@ def calibration_tradeoff(
     rows["RMSE (bp)"] = (free.rmse_bp, tied.rmse_bp)
     rows["largest error (bp)"] = (free.max_abs_bp, tied.max_abs_bp)
     rows["largest error at"] = (_worst(free), _worst(tied))
+    # RMSE and largest error leave these out, so a fit that prices far wings at
+    # zero would otherwise look cheaper than it is
+    rows["quotes without a model vol"] = tuple(
+        int(c.residuals["model_vol"].isna().sum()) for c in (free, tied)
+    )
     checks = [_variance_checks(c.params, dt, tolerance, near_zero) for c in (free, tied)]
     for key in checks[0]:
         rows[key] = (checks[0][key], checks[1][key])

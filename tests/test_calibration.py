@@ -185,6 +185,10 @@ def test_tradeoff_table_puts_both_fits_side_by_side():
     law = cir_transition(p.v0, p.kappa, p.theta, p.vol_of_vol, 1.0)
     assert table.loc["P(variance < 0.0001) at 1 year", "enforce"] == pytest.approx(law.cdf(1e-4))
     assert "maturity" in table.loc["constraint costs most at", "enforce"]
+    # quotes the RMSE leaves out are counted, per fit, from the fit's own residuals
+    for column, fit in (("free", free), ("enforce", tied)):
+        missing = int(fit.residuals["model_vol"].isna().sum())
+        assert table.loc["quotes without a model vol", column] == missing
 
 
 def test_bad_arguments_are_refused():
