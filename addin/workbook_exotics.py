@@ -105,8 +105,10 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
     notes = (
         "Shaded blue-grey: inputs.",
         "Tolerance: 0.1% of the spot by default.",
-        "Scheme and steps: as recommended",
-        "on the Step study sheet.",
+        "Scheme: the Step study's recommendation.",
+        "Steps: at least the Step study's count;",
+        "64 a year here, because barrier crossings",
+        "need finer steps than the vanilla's law.",
     )
     for i, text in enumerate(notes):
         ws.cell(row=22 + i, column=1, value=text).font = _NOTE
