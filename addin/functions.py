@@ -1134,7 +1134,8 @@ def _exotic_product(spot, product, kind, strike, maturity, barrier, direction, k
             fixings = tuple(sorted(to_numbers("dates", dates, ">0")))
             if abs(fixings[-1] - t) > 1e-9 * t:
                 raise CellError(
-                    f"maturity must be the last fixing date {fixings[-1]!r} of an Asian, got {t!r}"
+                    f"maturity must be the last fixing date {float(fixings[-1]):g} of an Asian, "
+                    f"got {t:g}"
                 )
         average = "geometric" if what == "geometric_asian" else "arithmetic"
         return AsianOption(kd, k, fixings, average)
@@ -1189,7 +1190,8 @@ def _exotic_inputs(params, spot, product, kind, strike, maturity, barrier, direc
 
 @sheet_function(
     "table: label / value rows (price, std error, 95% interval, control variate, its "
-    "coefficient, variance reduction, price and std error without it, scheme, steps, seconds)",
+    "coefficient, variance reduction, price and std error without it, scheme, steps, seconds, "
+    "notes such as why an already-knocked price is exact)",
     **_EXOTIC_DOCS,
 )
 def ROOTVAR_EXOTIC_PRICE(
@@ -1216,6 +1218,7 @@ def ROOTVAR_EXOTIC_PRICE(
             ["scheme", run.scheme],
             ["steps", int(run.steps)],
             ["seconds", run.elapsed_s],
+            ["notes", "; ".join(run.notes)],  # e.g. why an already-knocked price is exact
         ]
     )
 

@@ -170,8 +170,17 @@ def _resolve_control(product, control):
     if control == "auto":
         return auto
     if control not in allowed:
+        if isinstance(product, AsianOption):
+            what = f"{product.average} Asian"
+        else:
+            names = {
+                EuropeanOption: "European",
+                BarrierOption: "barrier",
+                ForwardStartOption: "forward start",
+            }
+            what = names.get(type(product), "digital")
         raise InputError(
-            f"control must be one of {('auto', *allowed)} for a {type(product).__name__}, "
+            f"control must be one of {', '.join(('auto', *allowed))} for {what} options, "
             f"got {control!r}"
         )
     return control

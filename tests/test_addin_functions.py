@@ -434,3 +434,33 @@ def test_exotic_bad_input_is_marked_text(product, cells, fragment):
         out = call(name, *_exotic_args(product, bool(check), **cells))
         assert isinstance(out, str) and out.startswith(MARK), out
         assert fragment in out and "InputError" not in out, out
+
+
+def test_exotic_price_says_why_a_knocked_barrier_is_worth_its_exact_value():
+    # a continuous down-and-out whose spot is already at the barrier is dead:
+    # worth nothing without a rebate (the definition of the contract), and the
+    # spill must carry the reason rather than a bare zero
+    rows = call(
+        "ROOTVAR_EXOTIC_PRICE",
+        *_exotic_args("barrier", strike=100.0, maturity=1.0, barrier=100.0, direction="down"),
+    )
+    table = dict(rows)
+    assert table["price"] == 0.0 and table["std error"] == 0.0
+    assert "already knocked" in table["notes"]
+    assert dict(call("ROOTVAR_EXOTIC_PRICE", *_exotic_args(
+        "barrier", strike=100.0, maturity=1.0, barrier=90.0, paths=2_000, steps=8
+    )))["notes"] == ""  # fmt: skip
+
+
+def test_exotic_messages_name_the_product_in_words():
+    text = call(
+        "ROOTVAR_EXOTIC_PRICE",
+        *_exotic_args("asian", strike=100.0, maturity=1.0, control="forward_start"),
+    )
+    assert text.startswith(MARK) and "for arithmetic Asian options" in text
+    assert "Option" not in text and "np.float64" not in text
+    text = call(
+        "ROOTVAR_EXOTIC_PRICE",
+        *_exotic_args("asian", strike=100.0, maturity=1.0, dates=[[0.5], [2.0]]),
+    )
+    assert "maturity must be the last fixing date 2 of an Asian, got 1" in text
