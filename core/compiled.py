@@ -33,6 +33,7 @@ KERNELS = (
     cos_kernels.cf_array,
     cos_kernels.log_cf_array,
     cos_kernels.fourier_sums,
+    cos_kernels.cos_coefficients,
 )
 
 

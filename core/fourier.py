@@ -30,7 +30,7 @@ import numpy as np
 
 from .black_scholes import implied_vol_reason
 from .compiled import notice_if_cold, thread_pool
-from .cos_kernels import cf_array, fourier_sums
+from .cos_kernels import cf_array, cos_coefficients, fourier_sums
 from .fourier_check import lewis_call_price
 from .heston_cf import heston_log_cf, log_return_cumulants
 from .numba_setup import numba
@@ -102,12 +102,18 @@ def _cf_cutoffs(params, maturities, drift, max_strike, spot):
 SPLIT_WORK = 1 << 12
 
 
-def _split(count, work):
-    """Slices of ``range(count)``, one per thread when ``work`` is worth it, and the pool."""
-    pool = thread_pool() if work >= SPLIT_WORK and count > 1 else None
+def _split(count, work, unit=1):
+    """Slices of ``range(count)``, one per thread when ``work`` is worth it, and the pool.
+
+    Slices hold whole multiples of ``unit`` items (the kernel's own batch),
+    so that splitting adds no work.
+    """
+    units = -(-count // unit)
+    pool = thread_pool() if work >= SPLIT_WORK and units > 1 else None
     if pool is None:
         return [slice(0, count)], None
-    edges = np.linspace(0, count, min(numba.get_num_threads(), count) + 1).astype(int)
+    edges = np.linspace(0, units, min(numba.get_num_threads(), units) + 1).astype(int) * unit
+    edges[-1] = count
     return [slice(a, b) for a, b in itertools.pairwise(edges)], pool
 
 
@@ -136,7 +142,7 @@ def _fourier_sums(angle, coef):
     """
     angle = np.ascontiguousarray(angle, dtype=float)
     coef = np.ascontiguousarray(coef, dtype=complex)
-    parts, pool = _split(angle.size, angle.size * coef.size)
+    parts, pool = _split(angle.size, angle.size * coef.size, unit=4)  # 4 angles at a time
     if pool is None:
         return fourier_sums(angle, coef)
     return np.concatenate(list(pool.map(lambda s: fourier_sums(angle[s], coef), parts)))
@@ -170,14 +176,9 @@ class _CosSeries:
     def from_cf(cls, a, b, cf, step=1):
         """Series from ``cf[::step]``, the characteristic function at
         ``k pi / (b - a)``, ``k = 0, 1, ...`` (``step`` picks a coarser grid)."""
-        cf = cf[::step]
-        omega = np.arange(cf.size) * (np.pi / (b - a))
-        coef = (cf * _phases(-a * np.pi / (b - a), cf.size)).real  # Re[cf e^{-i omega a}]
-        coef[0] *= 0.5  # the primed sum halves the first term
-        with np.errstate(divide="ignore", invalid="ignore"):
-            y = np.where(omega > 0, coef / omega, 0.0)
-        z = coef * (1.0 - 1j * omega) / (1.0 + omega * omega)
-        return cls(a, b, omega, coef, np.stack([y, z], axis=1), float(z.real.sum()))
+        # one compiled pass: Re[cf e^{-i omega a}] (first term halved) and the payoff columns
+        omega, coef, payoff, edge = cos_coefficients(cf, step, float(a), float(b))
+        return cls(a, b, omega, coef, payoff, edge)
 
     def cdf(self, points):
         """``P(R <= point)`` under the series' density on ``[a, b]``.
@@ -335,10 +336,11 @@ def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, st
             left *= 1.5 if err_left > tol else 1.0
             right *= 1.5 if err_right > tol else 1.0
             continue
-        puts = wide.puts(x, strike)  # the strip is wanted on the wide range anyway
+        # the probes first, the whole strip only once the range is accepted
+        # (each strike's sum is computed alone, so the probes' values are the strip's)
         base_probe = base.puts(x[probe], strike[probe])
-        if np.max(np.abs(base_probe - puts[probe])) <= tol:
-            return puts, wide.omega.size, (left, right)
+        if np.max(np.abs(base_probe - wide.puts(x[probe], strike[probe]))) <= tol:
+            return wide.puts(x, strike), wide.omega.size, (left, right)
         # which end is at fault: widen the left alone by half and look again
         n = terms(1.5 * left, right)
         if n > MAX_TERMS:
