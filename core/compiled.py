@@ -32,8 +32,8 @@ KERNELS = (
     mc_kernels.price_block,
     cos_kernels.cf_array,
     cos_kernels.log_cf_array,
-    cos_kernels.fourier_sums,
     cos_kernels.cos_coefficients,
+    cos_kernels.flat_sums,
 )
 
 

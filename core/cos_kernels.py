@@ -15,7 +15,16 @@ import numpy as np
 
 from .numba_setup import numba
 
-__all__ = ["cf_array", "fourier_sums", "log_cf_array", "principal_log", "principal_sqrt"]
+__all__ = [
+    "cf_array",
+    "cos_coefficients",
+    "flat_coefficients",
+    "flat_sums",
+    "fourier_sums",
+    "log_cf_array",
+    "principal_log",
+    "principal_sqrt",
+]
 
 njit = numba.njit
 
@@ -86,6 +95,17 @@ def cf_array(omega, t, model, drift):
     return out
 
 
+@njit(cache=True, nogil=True, inline="always")
+def _finish(out, m, cols, near_n, angle, part_re, part_im):
+    """``out[m, p] = sum_j e^{i j angle} partial[j, p]``, the near waves as running products."""
+    near_step = cmath.exp(1j * angle)
+    wave = 1.0 + 0j
+    for j in range(near_n):
+        for p in range(cols):
+            out[m, p] += wave * complex(part_re[j * cols + p], part_im[j * cols + p])
+        wave *= near_step
+
+
 @njit(cache=True, nogil=True)
 def fourier_sums(angle, coef):
     """``sum_k coef[k, p] exp(i k angle[m])`` for every m and column p.
@@ -97,31 +117,49 @@ def fourier_sums(angle, coef):
     ``sqrt(N)`` roundings), so only two complex exponentials are taken per
     angle instead of ``N``.
 
-    The coefficients are held as separate real and imaginary arrays and four
-    angles go through them together, so that the inner loop is plain real
-    arithmetic over contiguous numbers, which the compiler turns into vector
-    instructions, and each coefficient is loaded once per four angles.  The
-    operations are those of the complex product, in the same order, so every
-    angle's sum has the same bits as when it is computed alone.
+    The coefficients are held as separate real and imaginary arrays and,
+    when there are three or more left, four angles go through them together,
+    so that the inner loop is plain real arithmetic over contiguous numbers,
+    which the compiler turns into vector instructions, and each coefficient
+    is loaded once per four angles.  The operations are those of the complex
+    product, in the same order, so every angle's sum has the same bits
+    however the angles are grouped.
     """
+    flat_re, flat_im = flat_coefficients(coef)
+    return flat_sums(angle, flat_re, flat_im, coef.shape[0], coef.shape[1])
+
+
+@njit(cache=True, nogil=True)
+def flat_coefficients(coef):
+    """``coef`` (``N x cols``, complex) as the real and imaginary arrays
+    :func:`flat_sums` reads: row after row, zero-padded to ``J ceil(N / J)`` rows."""
     n, cols = coef.shape
     near_n = max(1, math.ceil(math.sqrt(n)))
-    far_n = -(-n // near_n)
-    width = near_n * cols
-    flat_re = np.zeros(far_n * width)
-    flat_im = np.zeros(far_n * width)
+    size = -(-n // near_n) * near_n * cols
+    flat_re = np.zeros(size)
+    flat_im = np.zeros(size)
     for k in range(n):
         for p in range(cols):
             flat_re[k * cols + p] = coef[k, p].real
             flat_im[k * cols + p] = coef[k, p].imag
+    return flat_re, flat_im
+
+
+@njit(cache=True, nogil=True)
+def flat_sums(angle, flat_re, flat_im, n, cols):
+    """:func:`fourier_sums` on coefficients laid out by :func:`flat_coefficients`."""
+    near_n = max(1, math.ceil(math.sqrt(n)))
+    far_n = -(-n // near_n)
+    width = near_n * cols
     out = np.zeros((angle.size, cols), dtype=np.complex128)
     part_re = np.empty((4, width))
     part_im = np.empty((4, width))
     far = np.empty(4, dtype=np.complex128)
     far_step = np.empty(4, dtype=np.complex128)
-    for first in range(0, angle.size, 4):
+    first = 0
+    while angle.size - first >= 3:
         count = min(4, angle.size - first)
-        for b in range(4):  # lanes past the last angle run on angle 0 and are dropped
+        for b in range(4):  # a lane past the last angle runs on angle 0 and is dropped
             far_step[b] = cmath.exp(1j * (near_n * (angle[first + b] if b < count else 0.0)))
             far[b] = 1.0
         part_re[:] = 0.0
@@ -146,13 +184,24 @@ def fourier_sums(angle, coef):
             for b in range(4):
                 far[b] *= far_step[b]
         for b in range(count):
-            near_step = cmath.exp(1j * angle[first + b])
-            wave = 1.0 + 0j
-            for j in range(near_n):
-                for p in range(cols):
-                    part = complex(part_re[b, j * cols + p], part_im[b, j * cols + p])
-                    out[first + b, p] += wave * part
-                wave *= near_step
+            _finish(out, first + b, cols, near_n, angle[first + b], part_re[b], part_im[b])
+        first += count
+    for m in range(first, angle.size):  # one or two left: one lane each
+        step = cmath.exp(1j * (near_n * angle[m]))
+        one_re, one_im = part_re[0], part_im[0]
+        one_re[:] = 0.0
+        one_im[:] = 0.0
+        wave = 1.0 + 0j
+        for ell in range(far_n):
+            base = ell * width
+            fr, fi = wave.real, wave.imag
+            for q in range(min(width, n * cols - base)):
+                cr = flat_re[base + q]
+                ci = flat_im[base + q]
+                one_re[q] += fr * cr - fi * ci
+                one_im[q] += fr * ci + fi * cr
+            wave *= step
+        _finish(out, m, cols, near_n, angle[m], one_re, one_im)
     return out
 
 
@@ -163,8 +212,9 @@ def cos_coefficients(cf, step, a, b):
     ``cf[k step]`` is the characteristic function at ``omega_k = k pi / (b - a)``.
     Returns ``omega``, ``coef = Re[cf e^{-i omega a}]`` (first term halved,
     Fang & Oosterlee 2008, eq. 9), the two payoff columns ``coef / omega``
-    (0 at ``omega = 0``) and ``coef (1 - i omega) / (1 + omega^2)``, and the
-    real sum of the second column.  The phases ``e^{-i omega_k a}`` are
+    (0 at ``omega = 0``) and ``coef (1 - i omega) / (1 + omega^2)`` laid out
+    for :func:`flat_sums` (real parts, imaginary parts), and the real sum of
+    the second column.  The phases ``e^{-i omega_k a}`` are
     products of a far and a near wave, as in ``rootvar.core.fourier._phases``.
     """
     n = -(-cf.size // step)
@@ -176,7 +226,9 @@ def cos_coefficients(cf, step, a, b):
         near[j] = cmath.exp(1j * (turn * j))
     omega = np.empty(n)
     coef = np.empty(n)
-    payoff = np.empty((n, 2), dtype=np.complex128)
+    size = -(-n // near_n) * near_n * 2
+    payoff_re = np.zeros(size)
+    payoff_im = np.zeros(size)
     edge = 0.0
     for k in range(n):
         far = cmath.exp(1j * (turn * near_n * (k // near_n)))
@@ -186,8 +238,9 @@ def cos_coefficients(cf, step, a, b):
             value *= 0.5  # the primed sum halves the first term
         omega[k] = w
         coef[k] = value
-        payoff[k, 0] = value / w if w > 0.0 else 0.0
+        payoff_re[2 * k] = value / w if w > 0.0 else 0.0
         z = value * (1.0 - 1j * w) / (1.0 + w * w)
-        payoff[k, 1] = z
+        payoff_re[2 * k + 1] = z.real
+        payoff_im[2 * k + 1] = z.imag
         edge += z.real
-    return omega, coef, payoff, edge
+    return omega, coef, payoff_re, payoff_im, edge

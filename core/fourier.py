@@ -30,7 +30,7 @@ import numpy as np
 
 from .black_scholes import implied_vol_reason
 from .compiled import notice_if_cold, thread_pool
-from .cos_kernels import cf_array, cos_coefficients, fourier_sums
+from .cos_kernels import cf_array, cos_coefficients, flat_coefficients, flat_sums
 from .fourier_check import lewis_call_price
 from .heston_cf import heston_log_cf, log_return_cumulants
 from .numba_setup import numba
@@ -80,6 +80,10 @@ class FourierDetails:
     fallbacks: int
 
 
+#: Frequencies on which ``_cf_cutoffs`` reads the decay of the characteristic function.
+_CUTOFF_GRID = np.geomspace(1e-2, 1e7, 160)
+
+
 def _cf_cutoffs(params, maturities, drift, max_strike, spot):
     """Per maturity, the frequency beyond which the dropped COS terms are negligible.
 
@@ -90,7 +94,7 @@ def _cf_cutoffs(params, maturities, drift, max_strike, spot):
     does not grow again past ``u*`` (checked on a grid up to 1e7).  ``u*`` is
     the first grid point after which that bound stays below ``SERIES_TOL x spot``.
     """
-    u = np.geomspace(1e-2, 1e7, 160)
+    u = _CUTOFF_GRID
     mod = np.exp(heston_log_cf(u[:, None], params, maturities[None, :], drift).real)
     above = mod * (4.0 * max_strike / (np.pi * u[:, None])) >= SERIES_TOL * spot
     # index of the first grid point past the last one still above the tolerance
@@ -137,15 +141,26 @@ def _fourier_sums(angle, coef):
 
     Splits ``k = l J + j`` (``J ~ sqrt(N)``) so that only ``2 M`` complex
     exponentials are taken instead of ``M N``; see
-    :func:`rootvar.core.cos_kernels.fourier_sums`.  Each angle's sum is
-    independent of the others, so slicing the angles over threads changes no bit.
+    :func:`rootvar.core.cos_kernels.fourier_sums`.
+    """
+    coef = np.ascontiguousarray(coef, dtype=complex)
+    flat_re, flat_im = flat_coefficients(coef)
+    return _flat_sums(angle, flat_re, flat_im, *coef.shape)
+
+
+def _flat_sums(angle, flat_re, flat_im, n, cols):
+    """:func:`_fourier_sums` on coefficients already laid out flat.
+
+    Each angle's sum is independent of the others and has the same bits
+    however the angles are grouped, so slicing them over threads changes no bit.
     """
     angle = np.ascontiguousarray(angle, dtype=float)
-    coef = np.ascontiguousarray(coef, dtype=complex)
-    parts, pool = _split(angle.size, angle.size * coef.size, unit=4)  # 4 angles at a time
+    parts, pool = _split(angle.size, angle.size * n * cols, unit=4)  # 4 angles at a time
     if pool is None:
-        return fourier_sums(angle, coef)
-    return np.concatenate(list(pool.map(lambda s: fourier_sums(angle[s], coef), parts)))
+        return flat_sums(angle, flat_re, flat_im, n, cols)
+    return np.concatenate(
+        list(pool.map(lambda s: flat_sums(angle[s], flat_re, flat_im, n, cols), parts))
+    )
 
 
 def _phases(step, count):
@@ -165,20 +180,31 @@ class _CosSeries:
     b: float
     omega: np.ndarray
     coef: np.ndarray
-    payoff_coef: np.ndarray  # columns: coef / omega and coef (1 - i omega) / (1 + omega^2)
+    # the payoff columns coef / omega and coef (1 - i omega) / (1 + omega^2),
+    # real and imaginary parts laid out for cos_kernels.flat_sums
+    payoff_re: np.ndarray
+    payoff_im: np.ndarray
     chi_edge: float  # sum of Re of the second column, the chi term at the lower end
 
     @property
     def nbytes(self):
-        return self.omega.nbytes + self.coef.nbytes + self.payoff_coef.nbytes
+        return self.omega.nbytes + self.coef.nbytes + self.payoff_re.nbytes + self.payoff_im.nbytes
+
+    @property
+    def payoff_coef(self):
+        """The two payoff columns as an ``N x 2`` complex array."""
+        n = self.coef.size
+        return (self.payoff_re[: 2 * n] + 1j * self.payoff_im[: 2 * n]).reshape(n, 2)
 
     @classmethod
     def from_cf(cls, a, b, cf, step=1):
         """Series from ``cf[::step]``, the characteristic function at
         ``k pi / (b - a)``, ``k = 0, 1, ...`` (``step`` picks a coarser grid)."""
         # one compiled pass: Re[cf e^{-i omega a}] (first term halved) and the payoff columns
-        omega, coef, payoff, edge = cos_coefficients(cf, step, float(a), float(b))
-        return cls(a, b, omega, coef, payoff, edge)
+        return cls(a, b, *cos_coefficients(cf, step, float(a), float(b)))
+
+    def _sums(self, angle):
+        return _payoff_sums(angle, self)
 
     def cdf(self, points):
         """``P(R <= point)`` under the series' density on ``[a, b]``.
@@ -188,8 +214,8 @@ class _CosSeries:
         2008, eq. 22).
         """
         a, b = self.a, self.b
-        cut = np.clip(points, a, b)
-        sums = _fourier_sums(np.pi * (cut - a) / (b - a), self.payoff_coef[:, :1])
+        cut = np.minimum(np.maximum(points, a), b)  # clip, without its wrapper's cost
+        sums = self._sums(np.pi * (cut - a) / (b - a))
         return 2.0 / (b - a) * (self.coef[0] * (cut - a) + sums[:, 0].imag)
 
     def puts(self, log_moneyness, strike):
@@ -199,11 +225,16 @@ class _CosSeries:
         payoff cut at ``R = -x`` clipped to the range.
         """
         a, b = self.a, self.b
-        cut = np.clip(-log_moneyness, a, b)
-        sums = _fourier_sums(np.pi * (cut - a) / (b - a), self.payoff_coef)
+        cut = np.minimum(np.maximum(-log_moneyness, a), b)
+        sums = self._sums(np.pi * (cut - a) / (b - a))
         psi_sum = self.coef[0] * (cut - a) + sums[:, 0].imag
         chi_sum = np.exp(cut) * sums[:, 1].real - np.exp(a) * self.chi_edge
         return 2.0 / (b - a) * strike * (psi_sum - np.exp(log_moneyness) * chi_sum)
+
+
+def _payoff_sums(angle, series):
+    """``sum_k payoff_coef[k, p] exp(i k angle[m])`` for the series' two payoff columns."""
+    return _flat_sums(angle, series.payoff_re, series.payoff_im, series.coef.size, 2)
 
 
 def _series_pair(params, maturity, drift, c1, sd, left, right, n):
