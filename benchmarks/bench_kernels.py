@@ -163,10 +163,11 @@ def _paired(func, repeats):
 
 
 def _cold(func):
-    """``func`` with the series cache emptied first: a first call."""
+    """``func`` with the series cache and the memo of maturities emptied first: a first call."""
 
     def run():
         fourier._SERIES.clear()
+        fourier._law_facts.cache_clear()
         func()
 
     return run

@@ -34,6 +34,7 @@ KERNELS = (
     cos_kernels.log_cf_array,
     cos_kernels.cos_coefficients,
     cos_kernels.flat_sums,
+    cos_kernels.cos_puts,
 )
 
 

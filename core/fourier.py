@@ -21,6 +21,7 @@ Two independent methods:
 
 from __future__ import annotations
 
+import functools
 import itertools
 import threading
 from collections import OrderedDict
@@ -30,7 +31,7 @@ import numpy as np
 
 from .black_scholes import implied_vol_reason
 from .compiled import notice_if_cold, thread_pool
-from .cos_kernels import cf_array, cos_coefficients, flat_coefficients, flat_sums
+from .cos_kernels import cf_array, cos_coefficients, cos_puts, flat_coefficients, flat_sums
 from .fourier_check import lewis_call_price
 from .heston_cf import heston_log_cf, log_return_cumulants
 from .numba_setup import numba
@@ -84,6 +85,23 @@ class FourierDetails:
 _CUTOFF_GRID = np.geomspace(1e-2, 1e7, 160)
 
 
+@functools.lru_cache(maxsize=256)
+def _law_facts(params, maturities, drift):
+    """Per maturity (a tuple), the mean and standard deviation of ln(S_T / S_0)
+    and ``|cf|`` on ``_CUTOFF_GRID`` (a column: grid x maturities).
+
+    Pure functions of the arguments, remembered so that a column of cells
+    pricing one model and maturity pays them once; read-only arrays.
+    """
+    t = np.array(maturities)
+    c1, c2 = log_return_cumulants(params, t, drift)
+    mod = np.exp(heston_log_cf(_CUTOFF_GRID[:, None], params, t[None, :], drift).real)
+    sd = np.sqrt(c2)
+    for part in (c1, sd, mod):
+        part.flags.writeable = False
+    return c1, sd, mod
+
+
 def _cf_cutoffs(params, maturities, drift, max_strike, spot):
     """Per maturity, the frequency beyond which the dropped COS terms are negligible.
 
@@ -95,7 +113,7 @@ def _cf_cutoffs(params, maturities, drift, max_strike, spot):
     the first grid point after which that bound stays below ``SERIES_TOL x spot``.
     """
     u = _CUTOFF_GRID
-    mod = np.exp(heston_log_cf(u[:, None], params, maturities[None, :], drift).real)
+    mod = _law_facts(params, tuple(np.asarray(maturities, dtype=float).tolist()), float(drift))[2]
     above = mod * (4.0 * max_strike / (np.pi * u[:, None])) >= SERIES_TOL * spot
     # index of the first grid point past the last one still above the tolerance
     last = np.where(above.any(axis=0), u.size - 1 - np.argmax(above[::-1], axis=0), -1)
@@ -224,12 +242,16 @@ class _CosSeries:
         Payoff coefficients from Fang & Oosterlee (2008), eqs. 22-23, with the
         payoff cut at ``R = -x`` clipped to the range.
         """
-        a, b = self.a, self.b
-        cut = np.minimum(np.maximum(-log_moneyness, a), b)
-        sums = self._sums(np.pi * (cut - a) / (b - a))
-        psi_sum = self.coef[0] * (cut - a) + sums[:, 0].imag
-        chi_sum = np.exp(cut) * sums[:, 1].real - np.exp(a) * self.chi_edge
-        return 2.0 / (b - a) * strike * (psi_sum - np.exp(log_moneyness) * chi_sum)
+        x, k = np.broadcast_arrays(np.asarray(log_moneyness, float), np.asarray(strike, float))
+        shape = x.shape
+        x, k = np.ascontiguousarray(x.ravel()), np.ascontiguousarray(k.ravel())
+        args = (float(self.a), float(self.b), float(self.coef[0]), self.payoff_re, self.payoff_im)
+        args = (*args, self.coef.size, float(self.chi_edge))
+        parts, pool = _split(k.size, k.size * self.coef.size * 2, unit=4)  # 4 strikes at a time
+        if pool is None:
+            return cos_puts(*args, x, k).reshape(shape)  # one compiled call: a strike or a strip
+        parts = pool.map(lambda s: cos_puts(*args, x[s], k[s]), parts)
+        return np.concatenate(list(parts)).reshape(shape)
 
 
 def _payoff_sums(angle, series):
@@ -239,21 +261,40 @@ def _payoff_sums(angle, series):
 
 def _series_pair(params, maturity, drift, c1, sd, left, right, n):
     """The series on ``[c1 - left sd, c1 + right sd]`` (``n`` terms), on its double (``2 n``),
-    and the double's cdf at the range's ends."""
-    wide_a, wide_b = c1 - 2.0 * left * sd, c1 + 2.0 * right * sd
-    omega = np.arange(2 * n) * (np.pi / (wide_b - wide_a))
-    cf = _cf_values(omega, params, maturity, drift)
-    wide = _CosSeries.from_cf(wide_a, wide_b, cf)
-    base = _CosSeries.from_cf(c1 - left * sd, c1 + right * sd, cf, step=2)
+    and the double's cdf at the range's ends.
+
+    The double's frequencies are taken as ``j h / 2`` with ``h`` the range's
+    own spacing, so that its even ones are exactly the range's (``2k (h/2)``
+    and ``k h`` round to the same number): the range's values come from the
+    cache when a widening check already asked for them (see
+    ``_cos_puts_certified``), and only the odd ones are computed here.
+    """
+    a, b = c1 - left * sd, c1 + right * sd
+    cf = np.empty(2 * n, dtype=complex)
+    cf[0::2] = _range_cf(params, maturity, drift, a, b, n)
+    cf[1::2] = _cf_values(
+        np.arange(1, 2 * n, 2) * (0.5 * (np.pi / (b - a))), params, maturity, drift
+    )
+    wide = _CosSeries.from_cf(c1 - 2.0 * left * sd, c1 + 2.0 * right * sd, cf)
+    base = _CosSeries.from_cf(a, b, cf, step=2)
     # the doubled range's cdf at the range's ends (the tail masses; no strike in them)
     return base, wide, wide.cdf(np.array([base.a, base.b]))
 
 
+def _cf_on_range(params, maturity, drift, a, b, n):
+    """The characteristic function at ``k pi / (b - a)``, ``k = 0 .. n - 1``."""
+    return _cf_values(np.arange(n) * (np.pi / (b - a)), params, maturity, drift)
+
+
+def _range_cf(params, maturity, drift, a, b, n):
+    """:func:`_cf_on_range` through the series cache (a pure function of the key)."""
+    key = ("cf", params, float(maturity), float(drift), float(a), float(b), n)
+    return _SERIES.get(key, _cf_on_range, params, maturity, drift, a, b, n)
+
+
 def _series(params, maturity, drift, a, b, n):
     """The series on ``[a, b]`` with ``n`` terms."""
-    return _CosSeries.from_cf(
-        a, b, _cf_values(np.arange(n) * (np.pi / (b - a)), params, maturity, drift)
-    )
+    return _CosSeries.from_cf(a, b, _range_cf(params, maturity, drift, a, b, n))
 
 
 class _SeriesCache:
@@ -434,8 +475,7 @@ def heston_price_details(
     start = (12.0, 12.0)
     times = np.unique(t_flat)
     if method == "cos":
-        c1, c2 = log_return_cumulants(params, times, drift)
-        sd = np.sqrt(c2)
+        c1, sd, _ = _law_facts(params, tuple(times.tolist()), drift)
         u_cut = _cf_cutoffs(params, times, drift, float(k_flat.max()), spot)
     for i, t in enumerate(times):
         sel = t_flat == t
