@@ -110,10 +110,14 @@ def test_cache_entries_larger_than_the_cache_are_not_kept():
     np.testing.assert_array_equal(value.coef, fourier._series(FO, 1.0, 0.0, -1.0, 1.0, 64).coef)
 
 
-def test_prices_are_bit_identical_for_one_and_two_threads():
+def test_prices_are_bit_identical_for_one_and_two_threads(monkeypatch):
     # Frequencies and strikes are sliced over threads when the work is large;
     # every value is computed alone, so the split must not change a bit.
+    # The thresholds are lowered so that every slice of work here is split.
     from rootvar.core.numba_setup import numba
+
+    monkeypatch.setattr(fourier, "SPLIT_WORK", 1)
+    monkeypatch.setattr(fourier, "CF_SPLIT_WORK", 1)
 
     strikes = np.linspace(40.0, 250.0, 60)
     maturities = np.array([0.1, 1.0, 10.0])[:, None]
