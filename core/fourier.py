@@ -228,7 +228,8 @@ class _CosSeries:
         """Series from ``cf[::step]``, the characteristic function at
         ``k pi / (b - a)``, ``k = 0, 1, ...`` (``step`` picks a coarser grid)."""
         # one compiled pass: Re[cf e^{-i omega a}] (first term halved) and the payoff columns
-        return cls(a, b, *cos_coefficients(cf, step, float(a), float(b)))
+        a, b = float(a), float(b)
+        return cls(a, b, *cos_coefficients(cf, step, a, b))
 
     def _sums(self, angle):
         return _payoff_sums(angle, self)
@@ -251,14 +252,19 @@ class _CosSeries:
         Payoff coefficients from Fang & Oosterlee (2008), eqs. 22-23, with the
         payoff cut at ``R = -x`` clipped to the range.
         """
-        x, k = np.broadcast_arrays(np.asarray(log_moneyness, float), np.asarray(strike, float))
+        x, k = np.asarray(log_moneyness, dtype=float), np.asarray(strike, dtype=float)
+        if x.shape != k.shape:
+            x, k = np.broadcast_arrays(x, k)
         shape = x.shape
         x, k = np.ascontiguousarray(x.ravel()), np.ascontiguousarray(k.ravel())
-        args = (float(self.a), float(self.b), float(self.coef[0]), self.payoff_re, self.payoff_im)
-        args = (*args, self.coef.size, float(self.chi_edge))
-        parts, pool = _split(k.size, k.size * self.coef.size * 2, unit=4)  # 4 strikes at a time
-        if pool is None:
+        args = (self.a, self.b, self.coef[0], self.payoff_re, self.payoff_im, self.coef.size)
+        args = (*args, self.chi_edge)
+        work = k.size * self.coef.size * 2
+        if work < SPLIT_WORK:  # the common case, without the splitting's overhead
             return cos_puts(*args, x, k).reshape(shape)  # one compiled call: a strike or a strip
+        parts, pool = _split(k.size, work, unit=4)  # 4 strikes at a time
+        if pool is None:
+            return cos_puts(*args, x, k).reshape(shape)
         parts = pool.map(lambda s: cos_puts(*args, x[s], k[s]), parts)
         return np.concatenate(list(parts)).reshape(shape)
 
