@@ -231,19 +231,20 @@ def cos_coefficients(cf, step, a, b):
     payoff_re = np.zeros(size)
     payoff_im = np.zeros(size)
     edge = 0.0
-    for k in range(n):
-        far = cmath.exp(1j * (turn * near_n * (k // near_n)))
-        w = k * width
-        value = (cf[k * step] * (far * near[k % near_n])).real
-        if k == 0:
-            value *= 0.5  # the primed sum halves the first term
-        omega[k] = w
-        coef[k] = value
-        payoff_re[2 * k] = value / w if w > 0.0 else 0.0
-        z = value * (1.0 - 1j * w) / (1.0 + w * w)
-        payoff_re[2 * k + 1] = z.real
-        payoff_im[2 * k + 1] = z.imag
-        edge += z.real
+    for ell in range(-(-n // near_n)):
+        far = cmath.exp(1j * (turn * near_n * ell))
+        for k in range(ell * near_n, min(n, (ell + 1) * near_n)):
+            w = k * width
+            value = (cf[k * step] * (far * near[k - ell * near_n])).real
+            if k == 0:
+                value *= 0.5  # the primed sum halves the first term
+            omega[k] = w
+            coef[k] = value
+            payoff_re[2 * k] = value / w if w > 0.0 else 0.0
+            z = value * (1.0 - 1j * w) / (1.0 + w * w)
+            payoff_re[2 * k + 1] = z.real
+            payoff_im[2 * k + 1] = z.imag
+            edge += z.real
     return omega, coef, payoff_re, payoff_im, edge
 
 
