@@ -120,6 +120,16 @@ def _numpy_payoff_sums(angle, series):
     return reference_fourier_sums(angle, series.payoff_coef)
 
 
+def _numpy_puts(series, log_moneyness, strike):
+    """``_CosSeries.puts`` as it was in numpy (Fang & Oosterlee 2008, eqs. 22-23)."""
+    a, b = series.a, series.b
+    cut = np.clip(-log_moneyness, a, b)
+    sums = reference_fourier_sums(np.pi * (cut - a) / (b - a), series.payoff_coef)
+    psi_sum = series.coef[0] * (cut - a) + sums[:, 0].imag
+    chi_sum = np.exp(cut) * sums[:, 1].real - np.exp(a) * series.chi_edge
+    return 2.0 / (b - a) * strike * (psi_sum - np.exp(log_moneyness) * chi_sum)
+
+
 class _NumpyFourier:
     """The pricer with its two hot functions (characteristic function, COS sums)
     swapped back to numpy and a cache that keeps nothing; the rest of the
@@ -127,12 +137,15 @@ class _NumpyFourier:
 
     def __enter__(self):
         self.saved = fourier._cf_values, fourier._payoff_sums, fourier._SERIES
+        self.puts = fourier._CosSeries.puts
         fourier._cf_values = reference_cf_values
         fourier._payoff_sums = _numpy_payoff_sums
+        fourier._CosSeries.puts = _numpy_puts
         fourier._SERIES = fourier._SeriesCache(0)
 
     def __exit__(self, *exc):
         fourier._cf_values, fourier._payoff_sums, fourier._SERIES = self.saved
+        fourier._CosSeries.puts = self.puts
 
 
 def _load() -> str:

@@ -241,10 +241,12 @@ def cos_coefficients(cf, step, a, b):
             omega[k] = w
             coef[k] = value
             payoff_re[2 * k] = value / w if w > 0.0 else 0.0
-            z = value * (1.0 - 1j * w) / (1.0 + w * w)
-            payoff_re[2 * k + 1] = z.real
-            payoff_im[2 * k + 1] = z.imag
-            edge += z.real
+            # value (1 - i w) / (1 + w^2) in real arithmetic (the complex
+            # operations reduce to these same roundings)
+            scale = 1.0 + w * w
+            payoff_re[2 * k + 1] = value / scale
+            payoff_im[2 * k + 1] = -(value * w) / scale
+            edge += payoff_re[2 * k + 1]
     return omega, coef, payoff_re, payoff_im, edge
 
 
