@@ -24,7 +24,7 @@ from rootvar.core.numba_setup import numba
 from .timing import median_seconds, show
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
-from fourier_reference import reference_cf_values, reference_fourier_sums
+from fourier_reference import reference_cf_values, reference_cos_puts, reference_fourier_sums
 from mc_reference import reference_price
 
 FO = HestonParams(0.0175, 1.5768, 0.0398, 0.5751, -0.5711)
@@ -121,13 +121,9 @@ def _numpy_payoff_sums(angle, series):
 
 
 def _numpy_puts(series, log_moneyness, strike):
-    """``_CosSeries.puts`` as it was in numpy (Fang & Oosterlee 2008, eqs. 22-23)."""
-    a, b = series.a, series.b
-    cut = np.clip(-log_moneyness, a, b)
-    sums = reference_fourier_sums(np.pi * (cut - a) / (b - a), series.payoff_coef)
-    psi_sum = series.coef[0] * (cut - a) + sums[:, 0].imag
-    chi_sum = np.exp(cut) * sums[:, 1].real - np.exp(a) * series.chi_edge
-    return 2.0 / (b - a) * strike * (psi_sum - np.exp(log_moneyness) * chi_sum)
+    """``_CosSeries.puts`` as it was in numpy."""
+    a, b, coef0, pay, edge = series.a, series.b, series.coef[0], series.payoff_coef, series.chi_edge
+    return reference_cos_puts(a, b, coef0, pay, edge, log_moneyness, strike)
 
 
 class _NumpyFourier:
