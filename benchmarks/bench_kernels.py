@@ -176,7 +176,7 @@ def _cold(func):
 
     def run():
         fourier._SERIES.clear()
-        fourier._law_facts.cache_clear()
+        fourier._law_facts_kept.cache_clear()
         func()
 
     return run

@@ -85,14 +85,25 @@ class FourierDetails:
 _CUTOFF_GRID = np.geomspace(1e-2, 1e7, 160)
 
 
-@functools.lru_cache(maxsize=256)
+#: Most maturities in one call whose ``_law_facts`` are remembered (bounds the
+#: memo at 256 entries x 160 x 64 numbers, 21 MB).
+LAW_FACTS_MATURITIES = 64
+
+
 def _law_facts(params, maturities, drift):
     """Per maturity (a tuple), the mean and standard deviation of ln(S_T / S_0)
     and ``|cf|`` on ``_CUTOFF_GRID`` (a column: grid x maturities).
 
-    Pure functions of the arguments, remembered so that a column of cells
+    Pure functions of the arguments, remembered (up to
+    ``LAW_FACTS_MATURITIES`` maturities per call) so that a column of cells
     pricing one model and maturity pays them once; read-only arrays.
     """
+    if len(maturities) > LAW_FACTS_MATURITIES:
+        return _law_facts_now(params, maturities, drift)
+    return _law_facts_kept(params, maturities, drift)
+
+
+def _law_facts_now(params, maturities, drift):
     t = np.array(maturities)
     c1, c2 = log_return_cumulants(params, t, drift)
     mod = np.exp(heston_log_cf(_CUTOFF_GRID[:, None], params, t[None, :], drift).real)
@@ -100,6 +111,9 @@ def _law_facts(params, maturities, drift):
     for part in (c1, sd, mod):
         part.flags.writeable = False
     return c1, sd, mod
+
+
+_law_facts_kept = functools.lru_cache(maxsize=256)(_law_facts_now)
 
 
 def _cf_cutoffs(params, maturities, drift, max_strike, spot):
@@ -120,12 +134,12 @@ def _cf_cutoffs(params, maturities, drift, max_strike, spot):
     return u[np.clip(last + 1, 0, u.size - 1)]
 
 
-#: Least work worth splitting over threads, in characteristic-function values
-#: (about 60 ns each) or in terms x columns x strikes of the COS sums (about
-#: 0.3 ns each): about a millisecond, or half of one, either way.  Handing a slice to the other
-#: thread costs tens of microseconds on an idle machine and far more on a busy
-#: one, where the other thread may wait for a core; smaller pieces of work were
-#: measured slower split than whole (10 x 101 surface, Fang & Oosterlee set,
+#: Least work worth splitting over threads: in terms x columns x strikes of the
+#: COS sums (about 0.3 ns each), and ``CF_SPLIT_WORK`` in characteristic-function
+#: values (about 100 ns each); half a millisecond to 2 ms either way.  Handing a
+#: slice to the other thread costs tens of microseconds on an idle machine and far
+#: more on a busy one, where the other thread may wait for a core: smaller pieces
+#: were measured slower split than whole (10 x 101 surface, Fang & Oosterlee set,
 #: load 4 on 2 cores: 8.6 ms on one thread, 15.5 ms split).
 SPLIT_WORK = 1 << 21
 CF_SPLIT_WORK = 1 << 14
@@ -282,7 +296,8 @@ def _series_pair(params, maturity, drift, c1, sd, left, right, n):
     own spacing, so that its even ones are exactly the range's (``2k (h/2)``
     and ``k h`` round to the same number): the range's values come from the
     cache when a widening check already asked for them (see
-    ``_cos_puts_certified``), and only the odd ones are computed here.
+    ``_cos_puts_certified``), and only the odd ones are computed here.  ``h / 2``
+    and the double's own spacing ``pi / (wide_b - wide_a)`` agree to rounding.
     """
     a, b = c1 - left * sd, c1 + right * sd
     cf = np.empty(2 * n, dtype=complex)

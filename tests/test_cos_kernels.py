@@ -140,6 +140,20 @@ def test_a_further_strike_at_a_cached_maturity_evaluates_no_characteristic_funct
     assert calls
 
 
+def test_remembered_maturity_facts_change_no_price_and_stay_bounded():
+    maturities = np.array([[0.5], [2.0]])
+    fourier._law_facts_kept.cache_clear()
+    fourier._SERIES.clear()
+    cold = heston_price(ANDERSEN_I, 100, [90.0, 110.0], maturities, 0.02)
+    fourier._SERIES.clear()  # the series rebuilt, the facts of the maturities remembered
+    warm = heston_price(ANDERSEN_I, 100, [90.0, 110.0], maturities, 0.02)
+    np.testing.assert_array_equal(warm, cold)
+    kept = fourier._law_facts_kept.cache_info().currsize
+    many = np.linspace(0.1, 5.0, fourier.LAW_FACTS_MATURITIES + 1)  # too many to keep
+    heston_price(FO, 100, 100.0, many)
+    assert fourier._law_facts_kept.cache_info().currsize == kept
+
+
 def test_a_full_cache_evicts_instead_of_growing(monkeypatch):
     maturities = np.linspace(0.5, 5.0, 12)[:, None]
     strikes = np.array([70.0, 100.0, 140.0])
