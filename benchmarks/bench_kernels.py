@@ -8,6 +8,7 @@ pricer with its two hot functions swapped back to numpy and no series cache.
 
 from __future__ import annotations
 
+import statistics
 import subprocess
 import sys
 import textwrap
@@ -23,7 +24,7 @@ from rootvar.core.numba_setup import numba
 from .timing import median_seconds, show
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
-from fourier_reference import reference_cf_values, reference_fourier_sums
+from fourier_reference import reference_cf_values, reference_cos_puts, reference_fourier_sums
 from mc_reference import reference_price
 
 FO = HestonParams(0.0175, 1.5768, 0.0398, 0.5751, -0.5711)
@@ -52,7 +53,7 @@ def _threads(n, func):
 def _monte_carlo() -> None:
     paths, steps = 16 * BLOCK, 100
     work = paths * steps
-    print(f"  QE with the log-price, FO parameters, {paths:,} paths x {steps} steps:")
+    print(f"  QE with the log-price, FO parameters, {paths:,} paths x {steps} steps ({_load()}):")
     base = median_seconds(
         lambda: reference_price(
             FO, 100, [100.0], 1.0, 0.0, 0.0, "call", "qe", steps, paths, 1, False, False
@@ -68,16 +69,19 @@ def _monte_carlo() -> None:
         t = _threads(n, lambda: median_seconds(ours, repeats=5))
         print(
             f"    compiled, {n} thread(s)                {work / t / 1e6:7.1f} M path-steps/s"
-            f"   {base / t:5.1f}x"
+            f"   {base / t:5.1f}x   {_load()}"
         )
     gen = np.random.Generator(np.random.SFC64(1))
     z, u = np.empty(BLOCK), np.empty(BLOCK)
     floor = median_seconds(lambda: _draws_only(gen, BLOCK, steps * 16, z, u), repeats=5)
-    print(f"    draws alone (normal + uniform), 1 thread {work / floor / 1e6:7.1f} M path-steps/s")
+    print(
+        f"    draws alone (normal + uniform), 1 thread {work / floor / 1e6:7.1f} M path-steps/s"
+        f"   {_load()}"
+    )
     print("    (issue targets: 80 M on one core, 150 M on 2 cores)")
 
     target = 0.005
-    print(f"  time to std_error <= {target} (ATM, 1 y, FO, 32 steps), QE conditional:")
+    print(f"  time to std_error <= {target} (ATM, 1 y, FO, 32 steps), QE conditional ({_load()}):")
     pilot = mc_price(FO, 100, 100.0, 1.0, steps=32, paths=20_000, conditional=True)
     n = int(np.ceil(20_000 * (pilot.std_error / target) ** 2 / 8192) * 8192)
     base = median_seconds(
@@ -105,61 +109,107 @@ def _monte_carlo() -> None:
         """
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
-    print(f"  1,000,000 paths x 500 steps, QE conditional, all threads: {out.stdout.strip()}")
+    print(
+        f"  1,000,000 paths x 500 steps, QE conditional, all threads: {out.stdout.strip()}"
+        f"   {_load()}"
+    )
     print("    (issue target: 4 s on 2 cores; previous numpy engine: 18-22 s, peak 0.31 GB)")
 
 
+def _numpy_payoff_sums(angle, series):
+    return reference_fourier_sums(angle, series.payoff_coef)
+
+
+def _numpy_puts(series, log_moneyness, strike):
+    """``_CosSeries.puts`` as it was in numpy."""
+    a, b, coef0, pay, edge = series.a, series.b, series.coef[0], series.payoff_coef, series.chi_edge
+    return reference_cos_puts(a, b, coef0, pay, edge, log_moneyness, strike)
+
+
 class _NumpyFourier:
-    """The pricer with its hot functions swapped back to numpy and a cache that keeps nothing."""
+    """The pricer with its two hot functions (characteristic function, COS sums)
+    swapped back to numpy and a cache that keeps nothing; the rest of the
+    pricer (range checks, series coefficients) is the same code in both."""
 
     def __enter__(self):
-        self.saved = fourier._cf_values, fourier._fourier_sums, fourier._SERIES
+        self.saved = fourier._cf_values, fourier._payoff_sums, fourier._SERIES
+        self.puts = fourier._CosSeries.puts
         fourier._cf_values = reference_cf_values
-        fourier._fourier_sums = reference_fourier_sums
+        fourier._payoff_sums = _numpy_payoff_sums
+        fourier._CosSeries.puts = _numpy_puts
         fourier._SERIES = fourier._SeriesCache(0)
 
     def __exit__(self, *exc):
-        fourier._cf_values, fourier._fourier_sums, fourier._SERIES = self.saved
+        fourier._cf_values, fourier._payoff_sums, fourier._SERIES = self.saved
+        fourier._CosSeries.puts = self.puts
+
+
+def _load() -> str:
+    """The 1-minute load average, printed beside the figures (the machine is shared)."""
+    with open("/proc/loadavg") as f:
+        return f"load {f.read().split()[0]}"
+
+
+def _paired(func, repeats):
+    """Median seconds of ``func`` with the numpy hot functions and compiled, runs alternated.
+
+    Alternating the two keeps a change in the machine's load (it is shared)
+    from falling on one side only.
+    """
+    base, fast = [], []
+    func()
+    with _NumpyFourier():
+        func()
+    for _ in range(repeats):
+        with _NumpyFourier():
+            start = time.perf_counter()
+            func()
+            base.append(time.perf_counter() - start)
+        start = time.perf_counter()
+        func()
+        fast.append(time.perf_counter() - start)
+    return statistics.median(base), statistics.median(fast)
 
 
 def _cold(func):
-    """``func`` with the series cache emptied first: a first call."""
+    """``func`` with the series cache and the memo of maturities emptied first: a first call."""
 
     def run():
         fourier._SERIES.clear()
+        fourier._law_facts_kept.cache_clear()
         func()
 
     return run
 
 
 def _fourier() -> None:
-    print("  one price, first call for its maturity (cache emptied before each call):")
+    print(f"  one price, first call for its maturity (cache emptied before each call; {_load()}):")
     for name, p, t, target in [
         ("Fang & Oosterlee, 1 y", FO, 1.0, "0.5 ms"),
         ("Andersen case I, 1 y", CASE_I, 1.0, "3 ms"),
         ("Andersen case I, 10 y", CASE_I, 10.0, "3 ms"),
     ]:
         one = _cold(lambda p=p, t=t: heston_price(p, 100.0, 100.0, t))
-        with _NumpyFourier():
-            base = median_seconds(one, repeats=9)
+        base, fast = _paired(one, repeats=15)
         show(f"{name}: numpy", base)
-        show(f"{name}: compiled (target {target})", median_seconds(one, repeats=21), base)
+        show(f"{name}: compiled (target {target})", fast, base)
     fourier._SERIES.clear()
     heston_price(CASE_I, 100.0, 100.0, 1.0)
     strikes = iter(np.linspace(60.0, 160.0, 400))
     further = median_seconds(lambda: heston_price(CASE_I, 100.0, next(strikes), 1.0), repeats=51)
     show("Andersen case I, a further strike at a cached maturity (target 0.05 ms)", further)
+    print(f"     ({_load()})")
 
     maturities = np.geomspace(0.25, 20.0, 10)[:, None]
     strikes = np.linspace(30.0, 300.0, 101)
-    print("  10 x 101 surface (0.25-20 y, strikes 30-300):")
+    print(f"  10 x 101 surface (0.25-20 y, strikes 30-300; {_load()}):")
     for name, p in [("Fang & Oosterlee", FO), ("Andersen case I", CASE_I)]:
         surface = _cold(lambda p=p: heston_price(p, 100.0, strikes, maturities))
+        base, fast = _paired(surface, repeats=7)
         with _NumpyFourier():
-            base = median_seconds(surface, repeats=5)
             before = heston_price_details(p, 100.0, strikes, maturities)
         show(f"{name}: numpy", base)
-        show(f"{name}: compiled, first call (target 4 ms)", median_seconds(surface, 9), base)
+        show(f"{name}: compiled, first call (target 4 ms)", fast, base)
         after = heston_price_details(p, 100.0, strikes, maturities)
         gap = np.max(np.abs(after.price - before.price))
         print(
@@ -183,7 +233,7 @@ def _cold_start() -> None:
     ]
     print(
         "  fresh process, disk cache warm: import + first price + first Monte Carlo "
-        f"{min(runs):.2f}-{max(runs):.2f} s (target 1.5 s)"
+        f"{min(runs):.2f}-{max(runs):.2f} s (target 1.5 s; {_load()})"
     )
 
 

@@ -37,6 +37,9 @@ KERNELS = (
     gradient_kernels.log_cf_gradient_array,
     gradient_kernels.put_coefficients,
     gradient_kernels.surface_sums,
+    cos_kernels.cos_coefficients,
+    cos_kernels.flat_sums,
+    cos_kernels.cos_puts,
 )
 
 

@@ -21,6 +21,7 @@ Two independent methods:
 
 from __future__ import annotations
 
+import functools
 import itertools
 import threading
 from collections import OrderedDict
@@ -30,7 +31,7 @@ import numpy as np
 
 from .black_scholes import implied_vol_reason
 from .compiled import notice_if_cold, thread_pool
-from .cos_kernels import cf_array, fourier_sums
+from .cos_kernels import cf_array, cos_coefficients, cos_puts, flat_coefficients, flat_sums
 from .fourier_check import lewis_call_price
 from .heston_cf import heston_log_cf, log_return_cumulants
 from .numba_setup import numba
@@ -80,6 +81,41 @@ class FourierDetails:
     fallbacks: int
 
 
+#: Frequencies on which ``_cf_cutoffs`` reads the decay of the characteristic function.
+_CUTOFF_GRID = np.geomspace(1e-2, 1e7, 160)
+
+
+#: Most maturities in one call whose ``_law_facts`` are remembered (bounds the
+#: memo at 256 entries x 160 x 64 numbers, 21 MB).
+LAW_FACTS_MATURITIES = 64
+
+
+def _law_facts(params, maturities, drift):
+    """Per maturity (a tuple), the mean and standard deviation of ln(S_T / S_0)
+    and ``|cf|`` on ``_CUTOFF_GRID`` (a column: grid x maturities).
+
+    Pure functions of the arguments, remembered (up to
+    ``LAW_FACTS_MATURITIES`` maturities per call) so that a column of cells
+    pricing one model and maturity pays them once; read-only arrays.
+    """
+    if len(maturities) > LAW_FACTS_MATURITIES:
+        return _law_facts_now(params, maturities, drift)
+    return _law_facts_kept(params, maturities, drift)
+
+
+def _law_facts_now(params, maturities, drift):
+    t = np.array(maturities)
+    c1, c2 = log_return_cumulants(params, t, drift)
+    mod = np.exp(heston_log_cf(_CUTOFF_GRID[:, None], params, t[None, :], drift).real)
+    sd = np.sqrt(c2)
+    for part in (c1, sd, mod):
+        part.flags.writeable = False
+    return c1, sd, mod
+
+
+_law_facts_kept = functools.lru_cache(maxsize=256)(_law_facts_now)
+
+
 def _cf_cutoffs(params, maturities, drift, max_strike, spot):
     """Per maturity, the frequency beyond which the dropped COS terms are negligible.
 
@@ -90,24 +126,39 @@ def _cf_cutoffs(params, maturities, drift, max_strike, spot):
     does not grow again past ``u*`` (checked on a grid up to 1e7).  ``u*`` is
     the first grid point after which that bound stays below ``SERIES_TOL x spot``.
     """
-    u = np.geomspace(1e-2, 1e7, 160)
-    mod = np.exp(heston_log_cf(u[:, None], params, maturities[None, :], drift).real)
+    u = _CUTOFF_GRID
+    mod = _law_facts(params, tuple(np.asarray(maturities, dtype=float).tolist()), float(drift))[2]
     above = mod * (4.0 * max_strike / (np.pi * u[:, None])) >= SERIES_TOL * spot
     # index of the first grid point past the last one still above the tolerance
     last = np.where(above.any(axis=0), u.size - 1 - np.argmax(above[::-1], axis=0), -1)
     return u[np.clip(last + 1, 0, u.size - 1)]
 
 
-#: Least work (frequencies x columns, or values) worth splitting over threads.
-SPLIT_WORK = 1 << 12
+#: Least work worth splitting over threads: in terms x columns x strikes of the
+#: COS sums (about 0.3 ns each), and ``CF_SPLIT_WORK`` in characteristic-function
+#: values (about 100 ns each); half a millisecond to 2 ms either way.  Handing a
+#: slice to the other thread costs tens of microseconds on an idle machine and far
+#: more on a busy one, where the other thread may wait for a core: smaller pieces
+#: were measured slower split than whole (10 x 101 surface, Fang & Oosterlee set,
+#: load 4 on 2 cores: 8.6 ms on one thread, 15.5 ms split).
+SPLIT_WORK = 1 << 21
+CF_SPLIT_WORK = 1 << 14
 
 
-def _split(count, work):
-    """Slices of ``range(count)``, one per thread when ``work`` is worth it, and the pool."""
-    pool = thread_pool() if work >= SPLIT_WORK and count > 1 else None
+def _split(count, work, unit=1, least=None):
+    """Slices of ``range(count)``, one per thread when ``work`` is at least
+    ``least`` (``SPLIT_WORK`` by default), and the pool.
+
+    Slices hold whole multiples of ``unit`` items (the kernel's own batch),
+    so that splitting adds no work.
+    """
+    units = -(-count // unit)
+    least = SPLIT_WORK if least is None else least
+    pool = thread_pool() if work >= least and units > 1 else None
     if pool is None:
         return [slice(0, count)], None
-    edges = np.linspace(0, count, min(numba.get_num_threads(), count) + 1).astype(int)
+    edges = np.linspace(0, units, min(numba.get_num_threads(), units) + 1).astype(int) * unit
+    edges[-1] = count
     return [slice(a, b) for a, b in itertools.pairwise(edges)], pool
 
 
@@ -120,7 +171,7 @@ def _cf_values(omega, params, maturity, drift):
     p = params
     model = np.array([p.kappa, p.theta, p.vol_of_vol, p.rho, p.v0])
     t, mu = float(maturity), float(drift)
-    parts, pool = _split(omega.size, omega.size)
+    parts, pool = _split(omega.size, omega.size, least=CF_SPLIT_WORK)
     if pool is None:
         return cf_array(omega, t, model, mu)
     return np.concatenate(list(pool.map(lambda s: cf_array(omega[s], t, model, mu), parts)))
@@ -131,15 +182,26 @@ def _fourier_sums(angle, coef):
 
     Splits ``k = l J + j`` (``J ~ sqrt(N)``) so that only ``2 M`` complex
     exponentials are taken instead of ``M N``; see
-    :func:`rootvar.core.cos_kernels.fourier_sums`.  Each angle's sum is
-    independent of the others, so slicing the angles over threads changes no bit.
+    :func:`rootvar.core.cos_kernels.fourier_sums`.
+    """
+    coef = np.ascontiguousarray(coef, dtype=complex)
+    flat_re, flat_im = flat_coefficients(coef)
+    return _flat_sums(angle, flat_re, flat_im, *coef.shape)
+
+
+def _flat_sums(angle, flat_re, flat_im, n, cols):
+    """:func:`_fourier_sums` on coefficients already laid out flat.
+
+    Each angle's sum is independent of the others and has the same bits
+    however the angles are grouped, so slicing them over threads changes no bit.
     """
     angle = np.ascontiguousarray(angle, dtype=float)
-    coef = np.ascontiguousarray(coef, dtype=complex)
-    parts, pool = _split(angle.size, angle.size * coef.size)
+    parts, pool = _split(angle.size, angle.size * n * cols, unit=4)  # 4 angles at a time
     if pool is None:
-        return fourier_sums(angle, coef)
-    return np.concatenate(list(pool.map(lambda s: fourier_sums(angle[s], coef), parts)))
+        return flat_sums(angle, flat_re, flat_im, n, cols)
+    return np.concatenate(
+        list(pool.map(lambda s: flat_sums(angle[s], flat_re, flat_im, n, cols), parts))
+    )
 
 
 def _phases(step, count):
@@ -159,25 +221,32 @@ class _CosSeries:
     b: float
     omega: np.ndarray
     coef: np.ndarray
-    payoff_coef: np.ndarray  # columns: coef / omega and coef (1 - i omega) / (1 + omega^2)
+    # the payoff columns coef / omega and coef (1 - i omega) / (1 + omega^2),
+    # real and imaginary parts laid out for cos_kernels.flat_sums
+    payoff_re: np.ndarray
+    payoff_im: np.ndarray
     chi_edge: float  # sum of Re of the second column, the chi term at the lower end
 
     @property
     def nbytes(self):
-        return self.omega.nbytes + self.coef.nbytes + self.payoff_coef.nbytes
+        return self.omega.nbytes + self.coef.nbytes + self.payoff_re.nbytes + self.payoff_im.nbytes
+
+    @property
+    def payoff_coef(self):
+        """The two payoff columns as an ``N x 2`` complex array."""
+        n = self.coef.size
+        return (self.payoff_re[: 2 * n] + 1j * self.payoff_im[: 2 * n]).reshape(n, 2)
 
     @classmethod
     def from_cf(cls, a, b, cf, step=1):
         """Series from ``cf[::step]``, the characteristic function at
         ``k pi / (b - a)``, ``k = 0, 1, ...`` (``step`` picks a coarser grid)."""
-        cf = cf[::step]
-        omega = np.arange(cf.size) * (np.pi / (b - a))
-        coef = (cf * _phases(-a * np.pi / (b - a), cf.size)).real  # Re[cf e^{-i omega a}]
-        coef[0] *= 0.5  # the primed sum halves the first term
-        with np.errstate(divide="ignore", invalid="ignore"):
-            y = np.where(omega > 0, coef / omega, 0.0)
-        z = coef * (1.0 - 1j * omega) / (1.0 + omega * omega)
-        return cls(a, b, omega, coef, np.stack([y, z], axis=1), float(z.real.sum()))
+        # one compiled pass: Re[cf e^{-i omega a}] (first term halved) and the payoff columns
+        a, b = float(a), float(b)
+        return cls(a, b, *cos_coefficients(cf, step, a, b))
+
+    def _sums(self, angle):
+        return _payoff_sums(angle, self)
 
     def cdf(self, points):
         """``P(R <= point)`` under the series' density on ``[a, b]``.
@@ -187,8 +256,8 @@ class _CosSeries:
         2008, eq. 22).
         """
         a, b = self.a, self.b
-        cut = np.clip(points, a, b)
-        sums = _fourier_sums(np.pi * (cut - a) / (b - a), self.payoff_coef[:, :1])
+        cut = np.minimum(np.maximum(points, a), b)  # clip, without its wrapper's cost
+        sums = self._sums(np.pi * (cut - a) / (b - a))
         return 2.0 / (b - a) * (self.coef[0] * (cut - a) + sums[:, 0].imag)
 
     def puts(self, log_moneyness, strike):
@@ -197,31 +266,65 @@ class _CosSeries:
         Payoff coefficients from Fang & Oosterlee (2008), eqs. 22-23, with the
         payoff cut at ``R = -x`` clipped to the range.
         """
-        a, b = self.a, self.b
-        cut = np.clip(-log_moneyness, a, b)
-        sums = _fourier_sums(np.pi * (cut - a) / (b - a), self.payoff_coef)
-        psi_sum = self.coef[0] * (cut - a) + sums[:, 0].imag
-        chi_sum = np.exp(cut) * sums[:, 1].real - np.exp(a) * self.chi_edge
-        return 2.0 / (b - a) * strike * (psi_sum - np.exp(log_moneyness) * chi_sum)
+        x, k = np.asarray(log_moneyness, dtype=float), np.asarray(strike, dtype=float)
+        if x.shape != k.shape:
+            x, k = np.broadcast_arrays(x, k)
+        shape = x.shape
+        x, k = np.ascontiguousarray(x.ravel()), np.ascontiguousarray(k.ravel())
+        args = (self.a, self.b, self.coef[0], self.payoff_re, self.payoff_im, self.coef.size)
+        args = (*args, self.chi_edge)
+        work = k.size * self.coef.size * 2
+        if work < SPLIT_WORK:  # the common case, without the splitting's overhead
+            return cos_puts(*args, x, k).reshape(shape)  # one compiled call: a strike or a strip
+        parts, pool = _split(k.size, work, unit=4)  # 4 strikes at a time
+        if pool is None:
+            return cos_puts(*args, x, k).reshape(shape)
+        parts = pool.map(lambda s: cos_puts(*args, x[s], k[s]), parts)
+        return np.concatenate(list(parts)).reshape(shape)
+
+
+def _payoff_sums(angle, series):
+    """``sum_k payoff_coef[k, p] exp(i k angle[m])`` for the series' two payoff columns."""
+    return _flat_sums(angle, series.payoff_re, series.payoff_im, series.coef.size, 2)
 
 
 def _series_pair(params, maturity, drift, c1, sd, left, right, n):
     """The series on ``[c1 - left sd, c1 + right sd]`` (``n`` terms), on its double (``2 n``),
-    and the double's cdf at the range's ends."""
-    wide_a, wide_b = c1 - 2.0 * left * sd, c1 + 2.0 * right * sd
-    omega = np.arange(2 * n) * (np.pi / (wide_b - wide_a))
-    cf = _cf_values(omega, params, maturity, drift)
-    wide = _CosSeries.from_cf(wide_a, wide_b, cf)
-    base = _CosSeries.from_cf(c1 - left * sd, c1 + right * sd, cf, step=2)
+    and the double's cdf at the range's ends.
+
+    The double's frequencies are taken as ``j h / 2`` with ``h`` the range's
+    own spacing, so that its even ones are exactly the range's (``2k (h/2)``
+    and ``k h`` round to the same number): the range's values come from the
+    cache when a widening check already asked for them (see
+    ``_cos_puts_certified``), and only the odd ones are computed here.  ``h / 2``
+    and the double's own spacing ``pi / (wide_b - wide_a)`` agree to rounding.
+    """
+    a, b = c1 - left * sd, c1 + right * sd
+    cf = np.empty(2 * n, dtype=complex)
+    cf[0::2] = _range_cf(params, maturity, drift, a, b, n)
+    cf[1::2] = _cf_values(
+        np.arange(1, 2 * n, 2) * (0.5 * (np.pi / (b - a))), params, maturity, drift
+    )
+    wide = _CosSeries.from_cf(c1 - 2.0 * left * sd, c1 + 2.0 * right * sd, cf)
+    base = _CosSeries.from_cf(a, b, cf, step=2)
     # the doubled range's cdf at the range's ends (the tail masses; no strike in them)
     return base, wide, wide.cdf(np.array([base.a, base.b]))
 
 
+def _cf_on_range(params, maturity, drift, a, b, n):
+    """The characteristic function at ``k pi / (b - a)``, ``k = 0 .. n - 1``."""
+    return _cf_values(np.arange(n) * (np.pi / (b - a)), params, maturity, drift)
+
+
+def _range_cf(params, maturity, drift, a, b, n):
+    """:func:`_cf_on_range` through the series cache (a pure function of the key)."""
+    key = ("cf", params, float(maturity), float(drift), float(a), float(b), n)
+    return _SERIES.get(key, _cf_on_range, params, maturity, drift, a, b, n)
+
+
 def _series(params, maturity, drift, a, b, n):
     """The series on ``[a, b]`` with ``n`` terms."""
-    return _CosSeries.from_cf(
-        a, b, _cf_values(np.arange(n) * (np.pi / (b - a)), params, maturity, drift)
-    )
+    return _CosSeries.from_cf(a, b, _range_cf(params, maturity, drift, a, b, n))
 
 
 class _SeriesCache:
@@ -335,10 +438,11 @@ def _cos_puts_certified(params, spot, strike, maturity, drift, c1, sd, u_cut, st
             left *= 1.5 if err_left > tol else 1.0
             right *= 1.5 if err_right > tol else 1.0
             continue
-        puts = wide.puts(x, strike)  # the strip is wanted on the wide range anyway
+        # the probes first, the whole strip only once the range is accepted
+        # (each strike's sum is computed alone, so the probes' values are the strip's)
         base_probe = base.puts(x[probe], strike[probe])
-        if np.max(np.abs(base_probe - puts[probe])) <= tol:
-            return puts, wide.omega.size, (left, right)
+        if np.max(np.abs(base_probe - wide.puts(x[probe], strike[probe]))) <= tol:
+            return wide.puts(x, strike), wide.omega.size, (left, right)
         # which end is at fault: widen the left alone by half and look again
         n = terms(1.5 * left, right)
         if n > MAX_TERMS:
@@ -401,8 +505,7 @@ def heston_price_details(
     start = (12.0, 12.0)
     times = np.unique(t_flat)
     if method == "cos":
-        c1, c2 = log_return_cumulants(params, times, drift)
-        sd = np.sqrt(c2)
+        c1, sd, _ = _law_facts(params, tuple(times.tolist()), drift)
         u_cut = _cf_cutoffs(params, times, drift, float(k_flat.max()), spot)
     for i, t in enumerate(times):
         sel = t_flat == t

@@ -66,6 +66,46 @@ def _uniforms(gen, out, size, anti):
         out[half + i] = LAST_UNIFORM - out[i]
 
 
+# numpy's error model: a division by zero gives inf instead of raising, so
+# divisions carry no check and the loop vectorises (no divisor here is ever 0)
+@njit(cache=True, nogil=True, error_model="numpy")
+def _qe_step(v, z, u, c, mean, ratio, index, out):
+    """One QE step of every path (Andersen 2008, eqs. 17-29, ``r = 2 / psi``) into ``out``.
+
+    The same operations, in the same order, as the QE branch of the general
+    step loop, but in two passes: every path first takes the quadratic
+    branch, a loop of products, divisions and square roots with no branch
+    and no call, which the compiler turns into vector instructions; then the
+    paths with ``r < r_c`` (few, except near zero variance) are overwritten
+    with the exponential branch, which needs a ``log``.  ``mean``, ``ratio``
+    and ``index`` are scratch arrays of the paths' size.  Each path's result
+    has the same bits as when it is computed alone.
+    """
+    e, m_const, half_c1, half_c2, r_c = c[4], c[5], c[6], c[7], c[8]
+    for i in range(v.size):
+        x = v[i]
+        m = x * e + m_const
+        q = x * half_c1 + half_c2
+        r = m * m / q
+        b2 = max(r, r_c)
+        rm1 = b2 - 1.0
+        b2 = math.sqrt(b2 * rm1) + rm1  # b^2
+        w = math.sqrt(b2) + z[i]
+        out[i] = w * w * m / (b2 + 1.0)
+        mean[i] = m
+        ratio[i] = r
+    # the exponential branch's paths listed without a branch (a branch here
+    # lets the compiler take the log of every path), then overwritten
+    hot = 0
+    for i in range(v.size):
+        index[hot] = i
+        hot += ratio[i] < r_c
+    for h in range(hot):
+        i = index[h]
+        q = 1.0 / ratio[i] + 0.5
+        out[i] = max(-math.log((1.0 - u[i]) * q), 0.0) * q * mean[i]
+
+
 @njit(cache=True, nogil=True)
 def block_paths(gen, size, anti, kind, fmap, c, v0, steps):
     """Every step of one block of paths.
@@ -108,6 +148,10 @@ def block_paths(gen, size, anti, kind, fmap, c, v0, steps):
     hit = np.zeros(size, dtype=np.bool_)
     z = np.empty(size)
     u = np.empty(size)
+    mean = np.empty(size)  # QE scratch: m, r = 2 / psi and the next variance per path
+    ratio = np.empty(size)
+    new_v = np.empty(size)
+    index = np.empty(size, dtype=np.int64)
     negatives = 0
     adj_failed = 0
     dt, kappa, theta, sigma = c[0], c[1], c[2], c[3]
@@ -131,6 +175,15 @@ def block_paths(gen, size, anti, kind, fmap, c, v0, steps):
             df, scale = c[6], c[7]  # scale = e / c
             for i in range(size):
                 new = cc * gen.noncentral_chisquare(df, v[i] * scale)
+                hit[i] |= new <= 0.0
+                int_var[i] += new
+                v[i] = new
+        elif kind == QE:
+            _normals(gen, z, size, anti)
+            _uniforms(gen, u, size, anti)
+            _qe_step(v, z, u, c, mean, ratio, index, new_v)
+            for i in range(size):
+                new = new_v[i]
                 hit[i] |= new <= 0.0
                 int_var[i] += new
                 v[i] = new

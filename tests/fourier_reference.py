@@ -40,3 +40,30 @@ def reference_fourier_sums(angle, coef):
     far = _powers(np.exp(1j * near_n * angle), far_n)
     partial = (far @ padded.reshape(far_n, near_n * cols)).reshape(angle.size, near_n, cols)
     return (near[:, None, :] @ partial)[:, 0, :]
+
+
+def reference_cos_coefficients(cf, step, a, b):
+    """The COS density coefficients and payoff columns in numpy, each phase
+    ``e^{-i omega_k a}`` taken by its own exponential (Fang & Oosterlee 2008, eq. 9).
+
+    Returns ``omega``, ``coef`` (first term halved), the payoff columns
+    ``coef / omega`` and ``coef (1 - i omega) / (1 + omega^2)`` as an
+    ``N x 2`` complex array, and the real sum of the second column.
+    """
+    cf = np.asarray(cf)[::step]
+    omega = np.arange(cf.size) * (np.pi / (b - a))
+    coef = (cf * np.exp(-1j * omega * a)).real
+    coef[0] *= 0.5
+    with np.errstate(divide="ignore", invalid="ignore"):
+        y = np.where(omega > 0, coef / omega, 0.0)
+    z = coef * (1.0 - 1j * omega) / (1.0 + omega * omega)
+    return omega, coef, np.stack([y + 0j, z], axis=1), float(z.real.sum())
+
+
+def reference_cos_puts(a, b, coef0, payoff, chi_edge, log_moneyness, strike):
+    """Undiscounted COS puts in numpy (Fang & Oosterlee 2008, eqs. 22-23)."""
+    cut = np.clip(-log_moneyness, a, b)
+    sums = reference_fourier_sums(np.pi * (cut - a) / (b - a), payoff)
+    psi_sum = coef0 * (cut - a) + sums[:, 0].imag
+    chi_sum = np.exp(cut) * sums[:, 1].real - np.exp(a) * chi_edge
+    return 2.0 / (b - a) * strike * (psi_sum - np.exp(log_moneyness) * chi_sum)

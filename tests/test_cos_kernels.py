@@ -2,10 +2,16 @@
 
 import numpy as np
 import pytest
-from fourier_reference import reference_cf_values, reference_fourier_sums
+from fourier_reference import (
+    reference_cf_values,
+    reference_cos_coefficients,
+    reference_cos_puts,
+    reference_fourier_sums,
+)
 
 import rootvar.core.fourier as fourier
 from rootvar.core import HestonParams, heston_price, heston_price_details
+from rootvar.core.cos_kernels import cos_coefficients, cos_puts
 from rootvar.core.heston_cf import heston_log_cf
 
 FO = HestonParams(v0=0.0175, kappa=1.5768, theta=0.0398, vol_of_vol=0.5751, rho=-0.5711)
@@ -54,6 +60,57 @@ def test_compiled_fourier_sums_match_the_matrix_product_form():
     assert np.max(np.abs(got - reference_fourier_sums(angle, coef))) < 1e-13
 
 
+def test_fourier_sums_have_the_same_bits_however_the_angles_are_grouped():
+    # Four angles share one pass over the coefficients and one or two use a
+    # single lane; every angle's operations are its own either way.
+    rng = np.random.default_rng(9)
+    coef = (rng.normal(size=(3000, 2)) + 1j * rng.normal(size=(3000, 2))) / 50.0
+    angle = rng.uniform(0, np.pi, 11)
+    whole = fourier._fourier_sums(angle, coef)
+    pieces = [fourier._fourier_sums(angle[i:j], coef) for i, j in [(0, 1), (1, 3), (3, 6), (6, 11)]]
+    np.testing.assert_array_equal(np.concatenate(pieces), whole)
+
+
+@pytest.mark.parametrize("step", [1, 2])
+def test_compiled_series_coefficients_match_the_numpy_form(step):
+    # The kernel's phases are running products of a near and a far wave; the
+    # numpy form takes every phase by its own exponential, so agreement to
+    # rounding (the argument omega_k a reaches ~300 here, ~1e-14 relative).
+    a, b = -2.7, 1.9
+    omega = np.arange(6000) * (np.pi / (b - a)) / step
+    cf = reference_cf_values(omega, ANDERSEN_I, 1.0, 0.01)
+    got_omega, coef, pay_re, pay_im, edge = cos_coefficients(cf, step, a, b)
+    want_omega, want_coef, want_pay, want_edge = reference_cos_coefficients(cf, step, a, b)
+    n = want_coef.size
+    np.testing.assert_array_equal(got_omega, want_omega)
+    assert np.max(np.abs(coef - want_coef)) < 1e-13
+    pay = (pay_re[: 2 * n] + 1j * pay_im[: 2 * n]).reshape(n, 2)
+    assert np.max(np.abs(pay - want_pay)) < 1e-13
+    assert not pay_re[2 * n :].any() and not pay_im[2 * n :].any()  # zero padding
+    assert edge == pytest.approx(want_edge, abs=1e-12)
+
+
+def test_compiled_puts_match_the_numpy_form_and_do_not_depend_on_the_strip():
+    a, b = -2.7, 1.9
+    omega = np.arange(4000) * (np.pi / (b - a))
+    cf = reference_cf_values(omega, FO, 1.0, 0.01)
+    _, coef, pay_re, pay_im, edge = cos_coefficients(cf, 1, a, b)
+    strikes = np.linspace(20.0, 400.0, 41)  # kinks inside and past both ends of the range
+    x = np.log(100.0 / strikes)
+    got = cos_puts(a, b, coef[0], pay_re, pay_im, coef.size, edge, x, strikes)
+    pay = (pay_re[: 2 * coef.size] + 1j * pay_im[: 2 * coef.size]).reshape(-1, 2)
+    want = reference_cos_puts(a, b, coef[0], pay, edge, x, strikes)
+    assert np.max(np.abs(got - want)) < 1e-11  # |put| <= 400
+    # a strike priced alone or inside any strip: the same bits
+    alone = [
+        cos_puts(a, b, coef[0], pay_re, pay_im, coef.size, edge, x[i : i + 1], strikes[i : i + 1])[
+            0
+        ]
+        for i in range(0, 41, 5)
+    ]
+    np.testing.assert_array_equal(alone, got[::5])
+
+
 def test_complex_arguments_are_accepted():
     # cf(-i) = E[S_T / S_0] = exp(drift T): the martingale identity (common practice, no source).
     value = heston_log_cf(-1j, FO, 2.0, 0.03)
@@ -83,6 +140,20 @@ def test_a_further_strike_at_a_cached_maturity_evaluates_no_characteristic_funct
     assert calls
 
 
+def test_remembered_maturity_facts_change_no_price_and_stay_bounded():
+    maturities = np.array([[0.5], [2.0]])
+    fourier._law_facts_kept.cache_clear()
+    fourier._SERIES.clear()
+    cold = heston_price(ANDERSEN_I, 100, [90.0, 110.0], maturities, 0.02)
+    fourier._SERIES.clear()  # the series rebuilt, the facts of the maturities remembered
+    warm = heston_price(ANDERSEN_I, 100, [90.0, 110.0], maturities, 0.02)
+    np.testing.assert_array_equal(warm, cold)
+    kept = fourier._law_facts_kept.cache_info().currsize
+    many = np.linspace(0.1, 5.0, fourier.LAW_FACTS_MATURITIES + 1)  # too many to keep
+    heston_price(FO, 100, 100.0, many)
+    assert fourier._law_facts_kept.cache_info().currsize == kept
+
+
 def test_a_full_cache_evicts_instead_of_growing(monkeypatch):
     maturities = np.linspace(0.5, 5.0, 12)[:, None]
     strikes = np.array([70.0, 100.0, 140.0])
@@ -110,10 +181,14 @@ def test_cache_entries_larger_than_the_cache_are_not_kept():
     np.testing.assert_array_equal(value.coef, fourier._series(FO, 1.0, 0.0, -1.0, 1.0, 64).coef)
 
 
-def test_prices_are_bit_identical_for_one_and_two_threads():
+def test_prices_are_bit_identical_for_one_and_two_threads(monkeypatch):
     # Frequencies and strikes are sliced over threads when the work is large;
     # every value is computed alone, so the split must not change a bit.
+    # The thresholds are lowered so that every slice of work here is split.
     from rootvar.core.numba_setup import numba
+
+    monkeypatch.setattr(fourier, "SPLIT_WORK", 1)
+    monkeypatch.setattr(fourier, "CF_SPLIT_WORK", 1)
 
     strikes = np.linspace(40.0, 250.0, 60)
     maturities = np.array([0.1, 1.0, 10.0])[:, None]
