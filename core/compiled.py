@@ -32,7 +32,6 @@ KERNELS = (
     mc_kernels.price_block,
     cos_kernels.cf_array,
     cos_kernels.log_cf_array,
-    cos_kernels.fourier_sums,
     mc_exotic_kernels.exotic_block,
     gradient_kernels.log_cf_gradient_array,
     gradient_kernels.put_coefficients,

@@ -21,7 +21,6 @@ __all__ = [
     "cos_puts",
     "flat_coefficients",
     "flat_sums",
-    "fourier_sums",
     "log_cf_array",
     "principal_log",
     "principal_sqrt",
@@ -108,29 +107,6 @@ def _finish(out, m, cols, near_n, angle, part_re, part_im):
 
 
 @njit(cache=True, nogil=True)
-def fourier_sums(angle, coef):
-    """``sum_k coef[k, p] exp(i k angle[m])`` for every m and column p.
-
-    Splits ``k = l J + j`` with ``J = ceil(sqrt(N))``: for each ``l`` the
-    coefficients are multiplied by the far wave ``e^{i l J angle}`` and added
-    per ``j``; the near waves ``e^{i j angle}`` finish the sum.  Both waves
-    are running products (``J + N / J`` numbers, each carrying about
-    ``sqrt(N)`` roundings), so only two complex exponentials are taken per
-    angle instead of ``N``.
-
-    The coefficients are held as separate real and imaginary arrays and,
-    when there are three or more left, four angles go through them together,
-    so that the inner loop is plain real arithmetic over contiguous numbers,
-    which the compiler turns into vector instructions, and each coefficient
-    is loaded once per four angles.  The operations are those of the complex
-    product, in the same order, so every angle's sum has the same bits
-    however the angles are grouped.
-    """
-    flat_re, flat_im = flat_coefficients(coef)
-    return flat_sums(angle, flat_re, flat_im, coef.shape[0], coef.shape[1])
-
-
-@njit(cache=True, nogil=True)
 def flat_coefficients(coef):
     """``coef`` (``N x cols``, complex) as the real and imaginary arrays
     :func:`flat_sums` reads: row after row, zero-padded to ``J ceil(N / J)`` rows."""
@@ -148,7 +124,24 @@ def flat_coefficients(coef):
 
 @njit(cache=True, nogil=True)
 def flat_sums(angle, flat_re, flat_im, n, cols):
-    """:func:`fourier_sums` on coefficients laid out by :func:`flat_coefficients`."""
+    """``sum_k coef[k, p] exp(i k angle[m])`` for every m and column p, on the
+    coefficients ``coef`` laid out by :func:`flat_coefficients`.
+
+    Splits ``k = l J + j`` with ``J = ceil(sqrt(N))``: for each ``l`` the
+    coefficients are multiplied by the far wave ``e^{i l J angle}`` and added
+    per ``j``; the near waves ``e^{i j angle}`` finish the sum.  Both waves
+    are running products (``J + N / J`` numbers, each carrying about
+    ``sqrt(N)`` roundings), so only two complex exponentials are taken per
+    angle instead of ``N``.
+
+    The coefficients are held as separate real and imaginary arrays and,
+    when there are three or more left, four angles go through them together,
+    so that the inner loop is plain real arithmetic over contiguous numbers,
+    which the compiler turns into vector instructions, and each coefficient
+    is loaded once per four angles.  The operations are those of the complex
+    product, in the same order, so every angle's sum has the same bits
+    however the angles are grouped.
+    """
     near_n = max(1, math.ceil(math.sqrt(n)))
     far_n = -(-n // near_n)
     width = near_n * cols

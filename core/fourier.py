@@ -182,7 +182,7 @@ def _fourier_sums(angle, coef):
 
     Splits ``k = l J + j`` (``J ~ sqrt(N)``) so that only ``2 M`` complex
     exponentials are taken instead of ``M N``; see
-    :func:`rootvar.core.cos_kernels.fourier_sums`.
+    :func:`rootvar.core.cos_kernels.flat_sums`.
     """
     coef = np.ascontiguousarray(coef, dtype=complex)
     flat_re, flat_im = flat_coefficients(coef)
