@@ -2,125 +2,96 @@
 
 This package never imports the spreadsheet layer (``rootvar.addin``),
 xlwings or openpyxl.
+
+Names are loaded on first use (PEP 562): ``from rootvar.core import
+heston_price`` imports the Fourier pricer and what it needs, not the
+calibration, the PDE solver or pandas.  A spreadsheet cell's first call
+then does not pay for the whole library (README, "Compiled kernels and
+cold start").
 """
 
+from __future__ import annotations
+
+import importlib
 from importlib.metadata import PackageNotFoundError, version
 
-from .black_scholes import bs_price, implied_vol, implied_vol_reason
-from .calibration import Calibration, calibrate, calibration_tradeoff
-from .cir_law import TINY_VARIANCE, cir_stationary, cir_transition, cir_transition_shapes
-from .compiled import CompileNotice, compile_kernels, kernels_cached
-from .exotic_check import ExoticComparison, compare_exotic
-from .fourier import FourierDetails, heston_implied_vol, heston_price, heston_price_details
-from .fourier_check import FourierCheckError, lewis_call_price
-from .fourier_exotics import FourierConvergenceError, forward_start_price, geometric_asian_price
-from .heston_gradient import heston_price_gradient
-from .mc_exotic import ExoticMCResult, mc_exotic
-from .mc_schemes import SCHEMES
-from .monte_carlo import BLOCK, DEFAULT_SEED, MCResult, expected_negative_step_fraction, mc_price
-from .params import HestonParams
-from .pde import PDEResult, pde_price
-from .products import (
-    AsianOption,
-    BarrierOption,
-    DigitalOption,
-    EuropeanOption,
-    ForwardStartOption,
-)
-from .quotes import QuoteSet, StaticArbitrageWarning, read_quotes
-from .report import DEFAULT_QUANTILES, variance_report
-from .validation import InputError
-from .variance import (
-    EulerWorstCase,
-    euler_max_step,
-    euler_negative_probability,
-    euler_worst_case,
-    feller_ratio,
-    regime_label,
-)
-from .verdict import (
-    BIASED,
-    CONSISTENT,
-    DEFAULT_PATHS,
-    DEFAULT_TOLERANCE_BP,
-    DEFAULT_Z,
-    PLANNING_SHARE,
-    UNDECIDED,
-    Comparison,
-    compare_mc_fourier,
-    planning_paths,
-    step_study,
-)
+#: Public names by the module that defines them.
+_MODULES = {
+    "black_scholes": ("bs_price", "implied_vol", "implied_vol_reason"),
+    "calibration": ("Calibration", "calibrate", "calibration_tradeoff"),
+    "cir_law": ("TINY_VARIANCE", "cir_stationary", "cir_transition", "cir_transition_shapes"),
+    "compiled": ("CompileNotice", "compile_kernels", "kernels_cached"),
+    "exotic_check": ("ExoticComparison", "compare_exotic"),
+    "fourier": ("FourierDetails", "heston_implied_vol", "heston_price", "heston_price_details"),
+    "fourier_check": ("FourierCheckError", "lewis_call_price"),
+    "fourier_exotics": ("FourierConvergenceError", "forward_start_price", "geometric_asian_price"),
+    "heston_gradient": ("heston_price_gradient",),
+    "mc_exotic": ("ExoticMCResult", "mc_exotic"),
+    "mc_schemes": ("SCHEMES",),
+    "monte_carlo": (
+        "BLOCK",
+        "DEFAULT_SEED",
+        "MCResult",
+        "expected_negative_step_fraction",
+        "mc_price",
+    ),
+    "params": ("HestonParams",),
+    "pde": ("PDEResult", "pde_price"),
+    "products": (
+        "AsianOption",
+        "BarrierOption",
+        "DigitalOption",
+        "EuropeanOption",
+        "ForwardStartOption",
+    ),
+    "quotes": ("QuoteSet", "StaticArbitrageWarning", "read_quotes"),
+    "report": ("DEFAULT_QUANTILES", "variance_report"),
+    "validation": ("InputError",),
+    "variance": (
+        "EulerWorstCase",
+        "euler_max_step",
+        "euler_negative_probability",
+        "euler_worst_case",
+        "feller_ratio",
+        "regime_label",
+    ),
+    "verdict": (
+        "BIASED",
+        "CONSISTENT",
+        "DEFAULT_PATHS",
+        "DEFAULT_TOLERANCE_BP",
+        "DEFAULT_Z",
+        "PLANNING_SHARE",
+        "UNDECIDED",
+        "Comparison",
+        "compare_mc_fourier",
+        "planning_paths",
+        "step_study",
+    ),
+}
+_WHERE = {name: module for module, names in _MODULES.items() for name in names}
 
 try:
     __version__ = version("rootvar")
 except PackageNotFoundError:  # running from a source tree that is not installed
     __version__ = "0+unknown"
 
-__all__ = [
-    "BIASED",
-    "BLOCK",
-    "CONSISTENT",
-    "DEFAULT_PATHS",
-    "DEFAULT_QUANTILES",
-    "DEFAULT_SEED",
-    "DEFAULT_TOLERANCE_BP",
-    "DEFAULT_Z",
-    "PLANNING_SHARE",
-    "SCHEMES",
-    "TINY_VARIANCE",
-    "UNDECIDED",
-    "AsianOption",
-    "BarrierOption",
-    "Calibration",
-    "Comparison",
-    "CompileNotice",
-    "DigitalOption",
-    "EulerWorstCase",
-    "EuropeanOption",
-    "ExoticComparison",
-    "ExoticMCResult",
-    "ForwardStartOption",
-    "FourierCheckError",
-    "FourierConvergenceError",
-    "FourierDetails",
-    "HestonParams",
-    "InputError",
-    "MCResult",
-    "PDEResult",
-    "QuoteSet",
-    "StaticArbitrageWarning",
-    "__version__",
-    "bs_price",
-    "calibrate",
-    "calibration_tradeoff",
-    "cir_stationary",
-    "cir_transition",
-    "cir_transition_shapes",
-    "compare_exotic",
-    "compare_mc_fourier",
-    "compile_kernels",
-    "euler_max_step",
-    "euler_negative_probability",
-    "euler_worst_case",
-    "expected_negative_step_fraction",
-    "feller_ratio",
-    "forward_start_price",
-    "geometric_asian_price",
-    "heston_implied_vol",
-    "heston_price",
-    "heston_price_details",
-    "heston_price_gradient",
-    "implied_vol",
-    "implied_vol_reason",
-    "kernels_cached",
-    "lewis_call_price",
-    "mc_exotic",
-    "mc_price",
-    "pde_price",
-    "planning_paths",
-    "read_quotes",
-    "regime_label",
-    "step_study",
-    "variance_report",
-]
+__all__ = sorted([*_WHERE, "__version__"])
+
+# A name that is also its module's name must be bound now: loading the module
+# later would set the package attribute to the module, hiding the function.
+from .mc_exotic import mc_exotic as mc_exotic  # noqa: E402
+
+
+def __getattr__(name: str):
+    """Import the module that defines ``name`` on first use, then keep the name here."""
+    module = _WHERE.get(name)
+    if module is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(importlib.import_module(f".{module}", __name__), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted({*globals(), *__all__})

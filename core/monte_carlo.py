@@ -26,7 +26,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .cir_law import cir_transition
 from .compiled import notice_if_cold, thread_pool
 from .mc_kernels import price_block
 from .mc_schemes import SCHEMES, kernel_constants
@@ -118,6 +117,10 @@ def expected_negative_step_fraction(
     share: measured about 10% lower for absorption and reflection, and about
     twice as high for the truncation schemes, whose negative states persist.
     """
+    # scipy.stats (behind the exact law) costs a third of a second to import, and
+    # only Euler schemes need this: import it here, not with the module
+    from .cir_law import cir_transition
+
     p = params
     dt = maturity / steps
     grid = dt * np.arange(steps)
