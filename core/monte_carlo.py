@@ -127,12 +127,14 @@ def expected_negative_step_fraction(
     sample = grid if steps <= times else np.linspace(grid[0], grid[-1], times)
     u, w = _probability_nodes()
     values = np.empty(sample.size)
-    for i, t in enumerate(sample):
-        if t == 0:
-            values[i] = euler_negative_probability(p.v0, p.kappa, p.theta, p.vol_of_vol, dt)
-            continue
-        v = cir_transition(p.v0, p.kappa, p.theta, p.vol_of_vol, t).ppf(u)
-        values[i] = np.dot(w, euler_negative_probability(v, p.kappa, p.theta, p.vol_of_vol, dt))
+    later = sample > 0
+    values[~later] = euler_negative_probability(p.v0, p.kappa, p.theta, p.vol_of_vol, dt)
+    if later.any():
+        # every grid time's quantiles in one call (one row per time): freezing a
+        # scipy law per time cost more than the quantiles themselves
+        law = cir_transition(p.v0, p.kappa, p.theta, p.vol_of_vol, sample[later][:, None])
+        v = law.ppf(u[None, :])
+        values[later] = euler_negative_probability(v, p.kappa, p.theta, p.vol_of_vol, dt) @ w
     if sample.size == steps:
         return float(values.mean())
     return float(np.trapezoid(values, sample) / (sample[-1] - sample[0]))
