@@ -37,7 +37,16 @@ import math
 
 import numpy as np
 
-from .mc_kernels import EULER, EXACT, QE_MARTINGALE, _f, _normals, _uniforms
+from .mc_kernels import (
+    EULER,
+    EXACT,
+    QE_MARTINGALE,
+    _f,
+    _normals,
+    _uniforms,
+    qe_martingale_shift,
+    qe_scalar,
+)
 from .numba_setup import numba
 
 __all__ = ["exotic_block"]
@@ -204,41 +213,11 @@ def exotic_block(
                 if kind == EXACT:
                     new = c[5] * u[i]
                 else:
-                    e, m_const, half_c1, half_c2, r_c = c[4], c[5], c[6], c[7], c[8]
-                    m = old * e + m_const
-                    q = old * half_c1 + half_c2
-                    r = m * m / q
-                    hot = r < r_c
-                    b2 = max(r, r_c)
-                    rm1 = b2 - 1.0
-                    b2 = math.sqrt(b2 * rm1) + rm1
-                    one_b2 = b2 + 1.0
-                    if hot:
-                        q = 1.0 / r + 0.5
-                        new = max(-math.log((1.0 - u[i]) * q), 0.0) * q * m
-                    else:
-                        w = math.sqrt(b2) + z[i]
-                        new = w * w * m / one_b2
+                    new, hot, q, m, one_b2 = qe_scalar(old, u[i], z[i], c)
                     if kind == QE_MARTINGALE:
-                        # Andersen (2008), eqs. (36)-(37), as in mc_kernels.block_paths
-                        k0, big_a, k13 = c[9], c[10], c[11]
-                        ok = False
-                        k0_star = 0.0
-                        if hot:
-                            pz, beta = 1.0 - 1.0 / q, 1.0 / (q * m)
-                            if beta > big_a:
-                                k0_star = -math.log(pz + beta * (1.0 - pz) / (beta - big_a))
-                                ok = True
-                        else:
-                            a = m / one_b2
-                            one = 1.0 - 2.0 * big_a * a
-                            if one > 0.0:
-                                k0_star = -big_a * (one_b2 - 1.0) * a / one + 0.5 * math.log(one)
-                                ok = True
-                        k0_star -= k13 * old
-                        if ok and math.isfinite(k0_star):
-                            adj = k0_star - k0
-                        else:
+                        adj = qe_martingale_shift(hot, q, m, one_b2, old, c)
+                        if math.isnan(adj):  # left uncorrected, and counted
+                            adj = 0.0
                             adj_failed += 1
                 d_int = 0.5 * dt * (old + new)
                 d_mart = (new - old - kappa * theta * dt + kappa * d_int) / sigma

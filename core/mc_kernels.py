@@ -23,7 +23,7 @@ import numpy as np
 
 from .numba_setup import numba
 
-__all__ = ["block_paths", "price_block"]
+__all__ = ["block_paths", "price_block", "qe_martingale_shift", "qe_scalar"]
 
 njit = numba.njit
 prange = numba.prange
@@ -64,6 +64,61 @@ def _uniforms(gen, out, size, anti):
         out[i] = gen.random()
     for i in range(size - half):
         out[half + i] = LAST_UNIFORM - out[i]
+
+
+@njit(cache=True, inline="always")
+def qe_scalar(x, ui, zi, c):
+    """One QE step of one path from variance ``x`` (Andersen 2008, eqs. 17-29, ``r = 2 / psi``).
+
+    Returns ``(new, hot, q, m, one_b2)``: the next variance, whether the
+    exponential branch was taken, and the branch quantities the martingale
+    correction reads (:func:`qe_martingale_shift`).
+    """
+    e, m_const, half_c1, half_c2, r_c = c[4], c[5], c[6], c[7], c[8]
+    m = x * e + m_const
+    q = x * half_c1 + half_c2
+    r = m * m / q  # r = 2 / psi
+    hot = r < r_c
+    # quadratic branch with psi clipped at psi_c (its 1 + b^2 also
+    # enters the martingale correction on every path)
+    b2 = max(r, r_c)
+    rm1 = b2 - 1.0
+    b2 = math.sqrt(b2 * rm1) + rm1  # b^2
+    one_b2 = b2 + 1.0
+    if hot:  # exponential branch
+        q = 1.0 / r + 0.5
+        new = max(-math.log((1.0 - ui) * q), 0.0) * q * m
+    else:
+        w = math.sqrt(b2) + zi
+        new = w * w * m / one_b2
+    return new, hot, q, m, one_b2
+
+
+@njit(cache=True, inline="always")
+def qe_martingale_shift(hot, q, m, one_b2, x, c):
+    """``K0* - K0`` of one path-step (Andersen 2008, eqs. 36-37), NaN where ``K0*`` does not exist.
+
+    ``hot, q, m, one_b2`` come from :func:`qe_scalar` on the same step, ``x``
+    is the variance at the step's start.
+    """
+    k0, big_a, k13 = c[9], c[10], c[11]
+    ok = False
+    k0_star = 0.0
+    if hot:
+        pz, beta = 1.0 - 1.0 / q, 1.0 / (q * m)
+        if beta > big_a:
+            k0_star = -math.log(pz + beta * (1.0 - pz) / (beta - big_a))
+            ok = True
+    else:
+        a = m / one_b2
+        one = 1.0 - 2.0 * big_a * a
+        if one > 0.0:
+            k0_star = -big_a * (one_b2 - 1.0) * a / one + 0.5 * math.log(one)
+            ok = True
+    k0_star -= k13 * x
+    if ok and math.isfinite(k0_star):
+        return k0_star - k0
+    return math.nan
 
 
 # numpy's error model: a division by zero gives inf instead of raising, so
@@ -171,8 +226,8 @@ def block_paths(gen, size, anti, kind, fmap, c, v0, steps):
                 mart[i] += sq_dt * root_z
                 v[i] = new
         elif kind == EXACT:
-            e, cc = c[4], c[5]
-            df, scale = c[6], c[7]  # scale = e / c
+            cc = c[5]
+            df, scale = c[6], c[7]  # scale = e^{-kappa dt} / c
             for i in range(size):
                 new = cc * gen.noncentral_chisquare(df, v[i] * scale)
                 hit[i] |= new <= 0.0
@@ -188,49 +243,18 @@ def block_paths(gen, size, anti, kind, fmap, c, v0, steps):
                 int_var[i] += new
                 v[i] = new
         else:
-            e, m_const, half_c1, half_c2, r_c = c[4], c[5], c[6], c[7], c[8]
             _normals(gen, z, size, anti)
             _uniforms(gen, u, size, anti)
             for i in range(size):
                 x = v[i]
-                m = x * e + m_const
-                q = x * half_c1 + half_c2
-                r = m * m / q  # r = 2 / psi
-                hot = r < r_c
-                # quadratic branch with psi clipped at psi_c (its 1 + b^2 also
-                # enters the martingale correction on every path)
-                b2 = max(r, r_c)
-                rm1 = b2 - 1.0
-                b2 = math.sqrt(b2 * rm1) + rm1  # b^2
-                one_b2 = b2 + 1.0
-                if hot:  # exponential branch
-                    q = 1.0 / r + 0.5
-                    new = max(-math.log((1.0 - u[i]) * q), 0.0) * q * m
-                else:
-                    w = math.sqrt(b2) + z[i]
-                    new = w * w * m / one_b2
+                new, hot, q, m, one_b2 = qe_scalar(x, u[i], z[i], c)
                 hit[i] |= new <= 0.0
                 if kind == QE_MARTINGALE:
-                    # Andersen (2008), eqs. (36)-(37); uncorrected where K0* does not exist
-                    k0, big_a, k13 = c[9], c[10], c[11]
-                    ok = False
-                    k0_star = 0.0
-                    if hot:
-                        pz, beta = 1.0 - 1.0 / q, 1.0 / (q * m)
-                        if beta > big_a:
-                            k0_star = -math.log(pz + beta * (1.0 - pz) / (beta - big_a))
-                            ok = True
-                    else:
-                        a = m / one_b2
-                        one = 1.0 - 2.0 * big_a * a
-                        if one > 0.0:
-                            k0_star = -big_a * (one_b2 - 1.0) * a / one + 0.5 * math.log(one)
-                            ok = True
-                    k0_star -= k13 * x
-                    if ok and math.isfinite(k0_star):
-                        adj[i] += k0_star - k0
-                    else:
+                    shift = qe_martingale_shift(hot, q, m, one_b2, x, c)
+                    if math.isnan(shift):  # left uncorrected, and counted
                         adj_failed += 1
+                    else:
+                        adj[i] += shift
                 int_var[i] += new
                 v[i] = new
     if kind != EULER:
