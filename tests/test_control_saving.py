@@ -321,7 +321,12 @@ def _start_and_wait_for_progress(path):
 def test_an_interrupted_or_killed_refresh_leaves_workbook_and_store_as_they_were(tmp_path, how):
     import signal
 
-    path = make_book(tmp_path, models=3)
+    def slower(wb):  # enough work left after the first model that the signal finds it running
+        for row in wb["Settings"].iter_rows(min_row=4, max_row=12):
+            if row[0].value == "paths":
+                row[1].value = 400_000
+
+    path = make_book(tmp_path, edit=slower, models=5)
     main(["refresh", str(path), "--as-of", "2026-12-01", "--workers", "1", "--quiet"])
     before = _digest(path)
     proc = _start_and_wait_for_progress(path)
