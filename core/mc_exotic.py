@@ -29,7 +29,15 @@ from .fourier_check import FourierCheckError
 from .fourier_exotics import FourierConvergenceError, forward_start_price, geometric_asian_price
 from .mc_exotic_kernels import exotic_block
 from .mc_schemes import SCHEMES, kernel_constants
-from .monte_carlo import BLOCK, DEFAULT_SEED, Z95, _child
+from .monte_carlo import (
+    BLOCK,
+    DEFAULT_SEED,
+    Z95,
+    _child,
+    check_stable,
+    coarse_step_notes,
+    diverged_error,
+)
 from .params import HestonParams
 from .products import (
     AsianOption,
@@ -488,6 +496,7 @@ def mc_exotic(
     for date in watched:
         watch[_node_of(nodes, date)] = 1
     info = SCHEMES[scheme]
+    check_stable(scheme, params.kappa, float(np.max(lengths)))
     rows, which = {}, np.empty(n_steps, dtype=np.int64)
     for k, dt in enumerate(lengths):
         which[k] = rows.setdefault(float(dt), len(rows))
@@ -521,6 +530,9 @@ def mc_exotic(
         pilot_paths = 0
     sums, counts = _run(np.random.SeedSequence(int(seed)), paths, chunk_paths, antithetic, args)
     n = int(counts[0])
+    if not np.all(np.isfinite(sums)):
+        raise diverged_error(scheme, params.kappa, float(np.max(lengths)))
+    notes.extend(coarse_step_notes(params.kappa, float(np.max(lengths))))
     mean_y, mean_c, var_y, var_c, cov = _moments(sums, n)
     if resolved != "none":
         price = mean_y - coefficient * (mean_c - control_mean)

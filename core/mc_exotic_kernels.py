@@ -253,6 +253,11 @@ def exotic_block(
     y = np.empty(size)
     cv = np.empty(size)
     for i in range(size):
+        if not (math.isfinite(x[i]) and math.isfinite(v[i])):
+            # a diverged path (an Euler variance blown up by a step far too coarse
+            # for the mean reversion) poisons the sums: the caller reports it
+            y[i] = cv[i] = math.nan
+            continue
         value = d_pay * _payoff(code, sign, strike, extra, xs, i, n_obs)
         if side != 0.0:
             if knock_in:  # priced on the paths: alive until the hit, rebate at expiry if never hit

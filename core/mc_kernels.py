@@ -301,6 +301,12 @@ def price_block(gen, size, anti, kind, fmap, c, v0, steps, market, rho, strikes,
         _normals(gen, z, size, anti)
     values = np.empty((size, n_k))
     for i in range(size):
+        if not (math.isfinite(int_var[i]) and math.isfinite(mart[i])):
+            # a diverged path (an Euler variance blown up by a step far too coarse
+            # for the mean reversion) poisons the sums: the caller reports it
+            for k in range(n_k):
+                values[i, k] = math.nan
+            continue
         root = math.sqrt(max((1.0 - rho * rho) * int_var[i], 0.0))
         if conditional:
             # Black-Scholes given the variance path (Willard 1997)

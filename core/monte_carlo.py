@@ -27,7 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .compiled import notice_if_cold, thread_pool
-from .mc_kernels import price_block
+from .mc_kernels import POS, price_block
 from .mc_schemes import SCHEMES, kernel_constants
 from .params import HestonParams
 from .validation import InputError, as_float_array, as_positive_int, check_choice
@@ -69,6 +69,55 @@ class MCResult:
     expected_negative_step_fraction: float
     martingale_correction_failures: int = 0
     notes: tuple = field(default_factory=tuple)
+
+
+def coarse_step_notes(kappa: float, dt: float) -> tuple:
+    """A caution when the largest step is long against the mean reversion (``kappa dt > 1``).
+
+    The variance then forgets its start within one step, so the trapezoid
+    integrated variance and the log-price step built on it carry a
+    discretisation bias that the standard error does not show (Andersen
+    2008, sec. 4, studies steps with ``kappa dt`` up to about 1).
+    """
+    if kappa * dt <= 1.0:
+        return ()
+    return (
+        f"kappa x dt = {kappa * dt:.3g} > 1: the step is long against the mean reversion, so "
+        "expect a discretisation bias the standard error does not show; refine the step or "
+        "check against a second price",
+    )
+
+
+class SchemeDivergenceError(InputError):
+    """The scheme cannot run at this step: its simulated variance blows up."""
+
+
+def diverged_error(scheme: str, kappa: float, dt: float) -> SchemeDivergenceError:
+    """The error for paths whose simulated variance blew up (never a number built on them)."""
+    return SchemeDivergenceError(
+        f"steps too coarse for scheme {scheme!r}: the simulated variance diverged on some paths "
+        f"(kappa x dt = {kappa * dt:.3g}); use more steps or the scheme 'qe'"
+    )
+
+
+def check_stable(scheme: str, kappa: float, dt: float) -> None:
+    """Refuse an Euler scheme whose drift step is unstable (``kappa dt >= 2``).
+
+    The drift of the fixes whose ``f2`` keeps negative values (partial
+    truncation: ``f2(v) = v``; reflection: ``f2(v) = |v|``) multiplies the
+    variance by ``1 - kappa dt`` each step, which grows without bound once
+    ``kappa dt >= 2`` (explicit Euler on ``dv = kappa (theta - v) dt``;
+    common practice, no source).  Such a run would return a price of paths
+    whose variance ran to about ``(kappa dt - 1)^steps``: refused instead.
+    Absorption and full truncation (``f2 = max(v, 0)``) stay bounded.
+    """
+    info = SCHEMES[scheme]
+    if info.euler and info.fmap[1] != POS and kappa * dt >= 2.0:
+        raise SchemeDivergenceError(
+            f"steps too coarse for scheme {scheme!r}: kappa x dt = {kappa * dt:.3g} >= 2 makes "
+            "its Euler step unstable (the variance grows by |1 - kappa dt| a step); use more "
+            "steps, full truncation or the scheme 'qe'"
+        )
 
 
 def _child(root, j):
@@ -242,6 +291,7 @@ def mc_price(
     started = time.perf_counter()
     p, info = params, SCHEMES[scheme]
     dt = maturity / steps
+    check_stable(scheme, p.kappa, dt)
     consts = kernel_constants(info, p, dt)
     fmap = np.array(info.fmap, dtype=np.int64)
     n_blocks = -(-paths // BLOCK)
@@ -286,6 +336,8 @@ def mc_price(
 
     n = int(counts.sum())
     mean = sums.sum(axis=0) / n
+    if not np.all(np.isfinite(mean)):
+        raise diverged_error(scheme, p.kappa, dt)
     var = np.maximum(squares.sum(axis=0) / n - mean * mean, 0.0) * n / max(n - 1, 1)
     se = np.sqrt(var / n)
     one = strike_in.ndim == 0
@@ -294,9 +346,9 @@ def mc_price(
         return float(a[0]) if one else a
 
     expected = expected_negative_step_fraction(p, maturity, steps) if info.euler else 0.0
-    notes = ()
+    notes = coarse_step_notes(p.kappa, dt)
     if adj_failed:
-        notes = (
+        notes += (
             f"martingale correction unavailable on {adj_failed} path-steps (left uncorrected)",
         )
     return MCResult(

@@ -12,7 +12,7 @@ from scipy.stats import norm
 from .black_scholes import implied_vol_reason
 from .fourier import heston_price
 from .mc_schemes import SCHEMES
-from .monte_carlo import DEFAULT_SEED, MCResult, mc_price
+from .monte_carlo import DEFAULT_SEED, MCResult, SchemeDivergenceError, mc_price
 from .validation import InputError, as_float_array, as_positive_int
 
 __all__ = [
@@ -327,6 +327,9 @@ def step_study(
         none), ``attrs["cheapest"]`` names the consistent cell with the
         lowest cost (steps x :data:`SCHEME_COST`, deterministic, unlike the
         measured ``seconds``), and ``attrs["fourier_price"]`` the yardstick.
+        A cell whose scheme cannot run at its step (an unstable Euler step,
+        :class:`rootvar.core.monte_carlo.SchemeDivergenceError`) has no
+        price, the verdict "biased", and its reason in ``attrs["diverged"]``.
     """
     if np.ndim(strike) != 0:
         raise InputError(f"strike must be a single number for a step study, got {strike!r}")
@@ -339,26 +342,46 @@ def step_study(
     if not grid:
         raise InputError("steps_grid must hold at least one step count, got an empty list")
     rows = []
+    fourier = None
+    diverged = []
     for s in schemes:
         for n in grid:
-            cmp_ = compare_mc_fourier(
-                params,
-                spot,
-                strike,
-                maturity,
-                rate,
-                div_yield,
-                kind,
-                s,
-                n,
-                paths,
-                seed,
-                False,
-                conditional,
-                tolerance_bp,
-                None,
-                z,
-            )
+            try:
+                cmp_ = compare_mc_fourier(
+                    params,
+                    spot,
+                    strike,
+                    maturity,
+                    rate,
+                    div_yield,
+                    kind,
+                    s,
+                    n,
+                    paths,
+                    seed,
+                    False,
+                    conditional,
+                    tolerance_bp,
+                    None,
+                    z,
+                )
+            except SchemeDivergenceError as exc:  # a diverged cell is as biased as can be
+                rows.append(
+                    {
+                        "scheme": s,
+                        "steps": n,
+                        "dt": float(maturity) / n,
+                        "price": math.nan,
+                        "std_error": math.nan,
+                        "bias_price": math.nan,
+                        "bias_vol_bp": math.nan,
+                        "z_score": math.nan,
+                        "verdict": BIASED,
+                        "seconds": 0.0,
+                    }
+                )
+                diverged.append(f"{s} at {n} steps: {exc}")
+                continue
             rows.append(
                 {
                     "scheme": s,
@@ -374,6 +397,8 @@ def step_study(
                 }
             )
             fourier = cmp_.fourier_price
+    if fourier is None:  # every cell diverged
+        fourier = heston_price(params, spot, strike, maturity, rate, div_yield, kind)
     table = pd.DataFrame(rows)
     good = table[table["verdict"] == CONSISTENT]
     coarsest = {
@@ -392,6 +417,7 @@ def step_study(
             "seconds": float(best["seconds"]),
         }
     table.attrs.update(
+        diverged=diverged,
         coarsest_consistent=coarsest,
         cheapest=cheapest,
         fourier_price=fourier,

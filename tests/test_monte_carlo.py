@@ -13,6 +13,7 @@ from rootvar.core import (
     cir_transition,
     heston_price,
     mc_price,
+    step_study,
 )
 from rootvar.core.mc_kernels import _uniforms, block_paths
 from rootvar.core.mc_schemes import kernel_constants
@@ -237,3 +238,29 @@ def test_bad_input_names_the_argument(kwargs, name):
     args = {"params": FO, "spot": 100.0, "strike": 100.0, "maturity": 1.0, **kwargs}
     with pytest.raises(InputError, match=name):
         mc_price(**args)
+
+
+def test_an_unstable_euler_step_is_refused_and_a_long_step_is_flagged():
+    # Explicit Euler on dv = kappa (theta - v) dt multiplies v by (1 - kappa dt) a step, which
+    # grows without bound once kappa dt >= 2 (common practice, no source): partial truncation
+    # and reflection keep that factor on negative values, full truncation does not.
+    from rootvar.core import EuropeanOption, mc_exotic
+    from rootvar.core.monte_carlo import SchemeDivergenceError
+
+    fast = HestonParams(0.04, 1000.0, 0.04, 0.5, -0.7)  # kappa dt = 15.6 at 64 steps a year
+    for scheme in ("euler_partial", "euler_reflect"):
+        with pytest.raises(SchemeDivergenceError, match=r"kappa x dt = 15\.6 >= 2"):
+            mc_price(fast, 100.0, 100.0, 1.0, scheme=scheme, steps=64, paths=2_000)
+        with pytest.raises(SchemeDivergenceError, match="unstable"):
+            mc_exotic(fast, 100.0, EuropeanOption("call", 100.0, 1.0), scheme=scheme, paths=2_000)
+    # a stable scheme still runs, and says the step is long against the mean reversion
+    run = mc_price(fast, 100.0, 100.0, 1.0, scheme="qe", steps=64, paths=2_000)
+    assert any("kappa x dt = 15.6 > 1" in note for note in run.notes)
+    assert mc_price(FO, 100.0, 100.0, 1.0, scheme="qe", steps=64, paths=2_000).notes == ()
+    # a step study keeps going: the unstable cells are biased, with their reason
+    table = step_study(
+        fast, 100.0, 100.0, 1.0, schemes=("euler_partial", "euler_full"), steps_grid=(64,),
+        paths=2_000,
+    )  # fmt: skip
+    assert table["verdict"].iloc[0] == "biased" and np.isnan(table["price"].iloc[0])
+    assert "euler_partial at 64 steps" in table.attrs["diverged"][0]
