@@ -34,6 +34,7 @@ from rootvar.core import (
     DEFAULT_SEED,
     DEFAULT_TOLERANCE_BP,
     DEFAULT_Z,
+    MAX_Z,
     SCHEMES,
     FourierCheckError,
     InputError,
@@ -587,7 +588,7 @@ def ROOTVAR_MC_CHECK(
         DEFAULT_PATHS,
     )  # fmt: skip
     tol = to_number("tolerance_bp", tolerance_bp, ">0", default=DEFAULT_TOLERANCE_BP)
-    width = to_number("z", z, ">0", default=DEFAULT_Z)
+    width = within("z", to_number("z", z, ">0", default=DEFAULT_Z), 1e-3, MAX_Z)
     anti = to_bool("antithetic", antithetic, True)
     if anti and n_paths % 2:
         raise CellError(f"paths must be even with antithetic TRUE, got {n_paths}")
@@ -760,7 +761,7 @@ def _pde_product(spot, strike, maturity, kind, barrier, direction, knock, rebate
     from rootvar.core import BarrierOption, EuropeanOption, InputError
 
     k = to_number("strike", strike, ">0")
-    t = to_number("maturity", maturity, ">0")
+    t = within("maturity", to_number("maturity", maturity, ">0"), MIN_MATURITY, MAX_YEARS)
     kd = to_choice("kind", kind, KINDS, "call")
     empty = barrier is None or (isinstance(barrier, str) and not barrier.strip())
     try:
@@ -829,8 +830,8 @@ def ROOTVAR_PDE_PRICE(
     p = to_params("params", params)
     s = to_number("spot", spot, ">0")
     product = _pde_product(s, strike, maturity, kind, barrier, direction, knock, rebate, monitoring)
-    r = to_number("rate", rate, default=0.0)
-    q = to_number("div_yield", div_yield, default=0.0)
+    r = within("rate", to_number("rate", rate, default=0.0), -1.0, 1.0)
+    q = within("div_yield", to_number("div_yield", div_yield, default=0.0), -1.0, 1.0)
     if grid is None:
         sizes = DEFAULT_GRID
     else:
@@ -1064,7 +1065,7 @@ _EXOTIC_DOCS = dict(
     scheme="euler_absorb, euler_reflect, euler_partial, euler_full, qe, qe_martingale or "
     "exact_variance (empty: qe)",
     steps="time steps per year; every fixing, monitoring and start date is a step end (empty: 64)",
-    paths="number of paths, even (empty: 100000)",
+    paths="number of paths, even, 1,000 to 10,000,000 (empty: 100000)",
     seed=f"random seed (empty: {DEFAULT_SEED})",
     control="auto, none, european, geometric asian or forward start (empty: auto)",
 )
@@ -1148,7 +1149,7 @@ def _exotic_run_args(scheme, steps, paths, seed, control):
 
     sch = to_choice("scheme", scheme, SCHEME_NAMES, DEFAULT_EXOTIC_SCHEME)
     n_steps = None if _empty(steps) else to_int("steps", steps, 1, 1, 100_000)
-    n_paths = to_int("paths", paths, DEFAULT_EXOTIC_PATHS, 2, 10_000_000)
+    n_paths = to_int("paths", paths, DEFAULT_EXOTIC_PATHS, 1_000, 10_000_000)
     if n_paths % 2:
         raise CellError(f"paths must be even (antithetic draws), got {n_paths}")
     sd = to_int("seed", seed, DEFAULT_SEED, 0, MAX_SEED)
@@ -1249,7 +1250,7 @@ def ROOTVAR_EXOTIC_CHECK(
         checking=True,
     )  # fmt: skip
     tol = None if _empty(tolerance) else to_number("tolerance", tolerance, ">0")
-    width = to_number("z", z, ">0", default=DEFAULT_Z)
+    width = within("z", to_number("z", z, ">0", default=DEFAULT_Z), 1e-3, MAX_Z)
     c = _cached_exotic_check(key, tol, width)
     reason = c.reason
     cap = _CAP.get()

@@ -61,6 +61,7 @@ _MODULES = {
         "DEFAULT_PATHS",
         "DEFAULT_TOLERANCE_BP",
         "DEFAULT_Z",
+        "MAX_Z",
         "PLANNING_SHARE",
         "UNDECIDED",
         "Comparison",

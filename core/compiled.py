@@ -112,7 +112,7 @@ def _compile_exotics(p) -> None:
     from .products import EuropeanOption
 
     for scheme in ("euler_full", "qe", "qe_martingale", "exact_variance"):
-        mc_exotic(p, 100.0, EuropeanOption("call", 100.0, 1.0), scheme=scheme, steps=2, paths=64)
+        mc_exotic(p, 100.0, EuropeanOption("call", 100.0, 1.0), scheme=scheme, steps=2, paths=128)
 
 
 _POOLS: dict = {}

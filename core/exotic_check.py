@@ -39,7 +39,15 @@ from .products import (
     ForwardStartOption,
 )
 from .validation import InputError, as_float_array, as_positive_int, check_choice
-from .verdict import BIASED, CONSISTENT, DEFAULT_Z, PLANNING_SHARE, UNDECIDED, planning_paths
+from .verdict import (
+    BIASED,
+    CONSISTENT,
+    DEFAULT_Z,
+    MAX_Z,
+    PLANNING_SHARE,
+    UNDECIDED,
+    planning_paths,
+)
 
 __all__ = [
     "DEFAULT_DIGITAL_TOLERANCE_SHARE",
@@ -491,6 +499,8 @@ def compare_exotic(
     rate = _scalar("rate", rate)
     div_yield = _scalar("div_yield", div_yield)
     z = _scalar("z", z, ">0")
+    if z > MAX_Z:
+        raise InputError(f"z must be <= {MAX_Z:g} standard errors, got {z!r}")
     if tolerance is not None:
         tol = _scalar("tolerance", tolerance, ">0")
         scale = f"{tol / spot:.3%} of spot"
@@ -537,6 +547,13 @@ def compare_exotic(
             control=control,
         )
     else:
+        if not isinstance(mc_result, ExoticMCResult):
+            raise InputError(f"mc_result must be an ExoticMCResult, got {type(mc_result).__name__}")
+        if mc_result.product != product or mc_result.market != (params, spot, rate, div_yield):
+            raise InputError(
+                "mc_result must be a run of the same product, params, spot, rate and "
+                "div_yield as the check, got a run of other inputs"
+            )
         mc = mc_result
         source = "given run"
 

@@ -48,6 +48,9 @@ from .products import (
 )
 from .validation import InputError, as_float_array, as_positive_int, check_choice
 
+#: Fewest paths a run accepts (its standard error needs a sample to stand on).
+MIN_PATHS = 100
+
 __all__ = [
     "CONTROLS",
     "DEFAULT_STEPS_PER_YEAR",
@@ -82,7 +85,9 @@ class ExoticMCResult:
     those paths.  Without a control, ``control`` is "none", ``control_mean``
     NaN, the coefficient 0 and the reduction 1.  ``steps`` is the total
     number of time steps of the grid, ``paths`` the main paths (the pilot's
-    are ``pilot_paths``, 0 without a control).
+    are ``pilot_paths``, 0 without a control).  ``market`` records the
+    ``(params, spot, rate, div_yield)`` the run priced, so a result handed
+    on (``compare_exotic(mc_result=...)``) can be checked against its inputs.
     """
 
     price: float
@@ -106,6 +111,7 @@ class ExoticMCResult:
     zero_touch_fraction: float
     negative_step_fraction: float
     notes: tuple = field(default_factory=tuple)
+    market: tuple = ()
 
 
 def _scalar(name, value, *rules):
@@ -463,6 +469,10 @@ def mc_exotic(
     check_choice("control", control, CONTROLS)
     steps_per_year = DEFAULT_STEPS_PER_YEAR if steps is None else as_positive_int("steps", steps)
     paths = as_positive_int("paths", paths)
+    if paths < MIN_PATHS:
+        # below this a sample variance (and so the standard error and the control's
+        # coefficient) means little: four paths can all miss a barrier and report 0
+        raise InputError(f"paths must be >= {MIN_PATHS}, got {paths}")
     if pilot_paths is None:
         pilot_paths = min(PILOT_PATHS, paths)
     pilot_paths = as_positive_int("pilot_paths", pilot_paths)
@@ -478,6 +488,7 @@ def mc_exotic(
                 raise InputError(f"{name} must be even with antithetic=True, got {n}")
     resolved = _resolve_control(product, control)
     common = {"scheme": scheme, "paths": paths, "seed": int(seed), "antithetic": antithetic}
+    common["market"] = (params, spot, rate, div_yield)
 
     if isinstance(product, BarrierOption) and product.continuous and bool(product.is_hit(spot)):
         return _knocked(params, spot, product, rate, div_yield, common, started)

@@ -54,6 +54,9 @@ SCHEME_COST = {
 DEFAULT_TOLERANCE_BP = 10.0
 #: Default band width, standard errors.
 DEFAULT_Z = 3.0
+#: Widest band accepted, standard errors: a normal tail beyond 10 is below 1e-23,
+#: so a wider band decides nothing more and only overflows the planning figure.
+MAX_Z = 10.0
 #: Default paths of the check (conditional and antithetic).
 DEFAULT_PATHS = 200_000
 #: Share of reruns at the planning figure in which a scheme without bias comes
@@ -203,6 +206,8 @@ def compare_mc_fourier(
     Fourier implied volatility.
     """
     z = float(as_float_array("z", z, ">0"))
+    if z > MAX_Z:
+        raise InputError(f"z must be <= {MAX_Z:g} standard errors, got {z!r}")
     if tolerance_price is not None:
         tol_price_in = float(as_float_array("tolerance_price", tolerance_price, ">0"))
         tolerance_bp = None

@@ -19,6 +19,7 @@ from rootvar.core import (
     InputError,
     compare_exotic,
     exotic_check,
+    mc_exotic,
     planning_paths,
 )
 from rootvar.core.exotic_check import (
@@ -214,3 +215,23 @@ def test_the_check_depends_only_on_its_inputs_and_seed():
     assert (a.mc.price, a.second_price, a.reason) == (b.mc.price, b.second_price, b.reason)
     c = compare_exotic(FO, 100.0, ARITHMETIC, seed=22, paths=20_000, reference_paths=20_000)
     assert c.second.result.seed != a.second.result.seed and c.second_price != a.second_price
+
+
+def test_a_handed_on_run_must_match_the_check_and_z_is_bounded():
+    run = mc_exotic(FO, 100.0, FORWARD, paths=2_000, steps=8)
+    # the same run is accepted ...
+    assert compare_exotic(FO, 100.0, FORWARD, mc_result=run).mc is run
+    # ... a run of another spot, product or model is refused, not compared
+    with pytest.raises(InputError, match="mc_result must be a run of the same product"):
+        compare_exotic(FO, 120.0, FORWARD, mc_result=run)
+    with pytest.raises(InputError, match="mc_result must be a run of the same product"):
+        compare_exotic(ANDERSEN_I, 100.0, FORWARD, mc_result=run)
+    with pytest.raises(InputError, match="mc_result must be a run of the same product"):
+        compare_exotic(FO, 100.0, GEOMETRIC, mc_result=run)
+    with pytest.raises(InputError, match="mc_result must be an ExoticMCResult, got str"):
+        compare_exotic(FO, 100.0, FORWARD, mc_result="x")
+    # a band wider than 10 standard errors decides nothing more (normal tail below 1e-23)
+    with pytest.raises(InputError, match="z must be <= 10 standard errors, got 1e"):
+        compare_exotic(FO, 100.0, FORWARD, mc_result=run, z=1e300)
+    with pytest.raises(InputError, match="paths must be >= 100, got 4"):
+        mc_exotic(FO, 100.0, DOWN_OUT, paths=4)
