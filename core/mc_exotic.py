@@ -48,6 +48,8 @@ from .products import (
 )
 from .validation import InputError, as_float_array, as_positive_int, check_choice
 
+#: Most steps a year a run accepts (one step every 5 minutes of a 24-hour year).
+MAX_STEPS_PER_YEAR = 100_000
 #: Fewest paths a run accepts (its standard error needs a sample to stand on).
 MIN_PATHS = 100
 
@@ -468,6 +470,9 @@ def mc_exotic(
     check_choice("scheme", scheme, tuple(SCHEMES))
     check_choice("control", control, CONTROLS)
     steps_per_year = DEFAULT_STEPS_PER_YEAR if steps is None else as_positive_int("steps", steps)
+    if steps_per_year > MAX_STEPS_PER_YEAR:
+        # the grid's arrays hold one number per step: refuse before allocating them
+        raise InputError(f"steps must be <= {MAX_STEPS_PER_YEAR:,} a year, got {steps_per_year:,}")
     paths = as_positive_int("paths", paths)
     if paths < MIN_PATHS:
         # below this a sample variance (and so the standard error and the control's

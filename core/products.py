@@ -137,7 +137,8 @@ class BarrierOption:
                 )
             dates = np.sort(np.minimum(dates, self.maturity))
             if np.any(np.diff(dates) <= 0):
-                raise InputError(f"monitoring dates must differ, got {float(dates[0])!r} twice")
+                twice = dates[1:][np.diff(dates) <= 0][0]
+                raise InputError(f"monitoring dates must differ, got {float(twice)!r} twice")
             object.__setattr__(self, "monitoring", tuple(float(d) for d in dates))
 
     @property

@@ -235,3 +235,5 @@ def test_a_handed_on_run_must_match_the_check_and_z_is_bounded():
         compare_exotic(FO, 100.0, FORWARD, mc_result=run, z=1e300)
     with pytest.raises(InputError, match="paths must be >= 100, got 4"):
         mc_exotic(FO, 100.0, DOWN_OUT, paths=4)
+    with pytest.raises(InputError, match="steps must be <= 100,000 a year, got 1,000,000,000"):
+        mc_exotic(FO, 100.0, DOWN_OUT, steps=10**9)

@@ -62,7 +62,7 @@ def test_bad_european(args, fragment):
         ({"rebate": -1.0}, "rebate must be >= 0, got -1.0"),
         ({"monitoring": [0.5, 1.5]}, "monitoring dates must lie in (0, maturity=1.0], got 1.5"),
         ({"monitoring": [0.0, 0.5]}, "monitoring must be > 0, got 0.0"),
-        ({"monitoring": [0.5, 0.5]}, "monitoring dates must differ"),
+        ({"monitoring": [0.25, 0.5, 0.5, 1.0]}, "monitoring dates must differ, got 0.5 twice"),
         ({"monitoring": []}, "monitoring must hold at least one date"),
     ],
 )
