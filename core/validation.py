@@ -38,7 +38,12 @@ _RULES = {
 
 
 def _show(value: object) -> str:
-    return repr(float(value)) if isinstance(value, numbers.Real) else repr(value)
+    return repr(float(value)) if isinstance(value, numbers.Real) else _plain(value)
+
+
+def _plain(value: object) -> str:
+    """``repr`` of a value, numpy scalars shown as the Python numbers they hold."""
+    return repr(value.item() if isinstance(value, np.generic) else value)
 
 
 def as_float_array(name: str, value: object, *rules: str) -> np.ndarray:
@@ -60,7 +65,7 @@ def as_float_array(name: str, value: object, *rules: str) -> np.ndarray:
         Naming ``name``, the broken rule and the first offending value.
     """
     if isinstance(value, (bool, np.bool_, str, bytes)) or value is None:
-        raise InputError(f"{name} must be a number, got {value!r}")
+        raise InputError(f"{name} must be a number, got {_plain(value)}")
     try:
         arr = np.asarray(value, dtype=float)
     except (TypeError, ValueError) as exc:
@@ -79,9 +84,9 @@ def as_float_array(name: str, value: object, *rules: str) -> np.ndarray:
 def as_positive_int(name: str, value: object) -> int:
     """Return ``value`` as a positive ``int``; refuse 2.5, 0, -3, True, "10"."""
     if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
-        raise InputError(f"{name} must be a positive whole number, got {value!r}")
+        raise InputError(f"{name} must be a positive whole number, got {_plain(value)}")
     if not math.isfinite(value) or value != int(value) or value < 1:
-        raise InputError(f"{name} must be a positive whole number, got {value!r}")
+        raise InputError(f"{name} must be a positive whole number, got {_plain(value)}")
     return int(value)
 
 
@@ -89,7 +94,7 @@ def check_choice(name: str, value: object, choices) -> str:
     """Return ``value`` if it is one of ``choices`` (strings), else raise."""
     if not isinstance(value, str) or value not in choices:
         listed = ", ".join(repr(c) for c in choices)
-        raise InputError(f"{name} must be one of {listed}, got {value!r}")
+        raise InputError(f"{name} must be one of {listed}, got {_plain(value)}")
     return value
 
 

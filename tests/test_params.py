@@ -44,3 +44,14 @@ def test_bad_parameter_message_names_parameter_rule_and_value(field, value, rule
 def test_message_shows_the_value():
     with pytest.raises(ValueError, match=r"kappa must be > 0, got -0\.5"):
         HestonParams(0.04, -0.5, 0.04, 1.0, 0.0)
+
+
+def test_messages_show_numpy_scalars_as_plain_numbers():
+    # a value read from an array is a numpy scalar; its repr would leak "np.float64(...)"
+    from rootvar.core import EuropeanOption
+    from rootvar.core.validation import as_positive_int
+
+    with pytest.raises(InputError, match=r"kind must be one of 'call', 'put', got 1\.0$"):
+        EuropeanOption(np.float64(1.0), 100.0, 1.0)
+    with pytest.raises(InputError, match=r"paths must be a positive whole number, got 2\.5$"):
+        as_positive_int("paths", np.float64(2.5))
