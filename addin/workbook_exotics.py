@@ -89,7 +89,7 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
         ("rate", f"={pt}!B15", "0.00%", False),
         ("dividend yield", f"={pt}!B16", "0.00%", False),
         ("scheme", "qe", None, True),
-        ("steps per year", 64, "#,##0", True),
+        ("steps per year", None, "#,##0", True),  # blank: the engine's default by product
         ("paths (antithetic)", 100000, "#,##0", True),
         ("seed", 20240601, "0", True),
         ("tolerance (price)", "=0.001*B12", _PRICE, True),
@@ -106,9 +106,10 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
         "Shaded blue-grey: inputs.",
         "Tolerance: 0.1% of the spot by default.",
         "Scheme: the Step study's recommendation.",
-        "Steps: at least the Step study's count;",
-        "64 a year here, because barrier crossings",
-        "need finer steps than the vanilla's law.",
+        "Steps per year blank: 256 for the barrier",
+        "(its crossing bias falls with the step),",
+        "64 otherwise; never fewer than the",
+        "Step study's count.",
     )
     for i, text in enumerate(notes):
         ws.cell(row=22 + i, column=1, value=text).font = _NOTE

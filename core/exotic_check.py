@@ -401,7 +401,8 @@ def compare_exotic(
         Time steps per year, as in :func:`rootvar.core.mc_exotic` (every
         fixing, monitoring and start date is a grid node).  Default: the step
         study's (its steps over the maturity, per year) when ``study`` is
-        True, else :func:`rootvar.core.mc_exotic`'s default (64 a year).
+        True, else :func:`rootvar.core.mc_exotic`'s default (64 a year, 256 for a
+        continuously watched barrier).
     paths, seed, antithetic, control
         As in :func:`rootvar.core.mc_exotic` (default 100,000 antithetic
         paths, control variate chosen by product).

@@ -54,6 +54,7 @@ MAX_STEPS_PER_YEAR = 100_000
 MIN_PATHS = 100
 
 __all__ = [
+    "BARRIER_STEPS_PER_YEAR",
     "CONTROLS",
     "DEFAULT_STEPS_PER_YEAR",
     "PILOT_PATHS",
@@ -64,6 +65,11 @@ __all__ = [
 
 #: Time steps per year when none are given.
 DEFAULT_STEPS_PER_YEAR = 64
+#: ... and for a continuously watched barrier: the bridge approximation's bias falls with
+#: the step. Measured over 771 seeds (QE, 100,000 antithetic paths, down-and-out call):
+#: Monte Carlo minus the PDE +0.020 +- 0.0004 on the Fang & Oosterlee set and +0.016 on the
+#: demo desk's model at 64 steps a year, +0.002 and +0.004 (+- 0.002) at 256.
+BARRIER_STEPS_PER_YEAR = 256
 #: Paths of the pilot batch that fixes the control coefficient, by default.
 PILOT_PATHS = BLOCK
 #: Spawn key of the pilot stream (main blocks have keys ``(j,)``, pilot blocks ``(PILOT_KEY, j)``).
@@ -360,7 +366,9 @@ def mc_exotic(
     scheme : str
         A key of :data:`rootvar.core.mc_schemes.SCHEMES`.
     steps : int or None
-        Time steps **per year** (default :data:`DEFAULT_STEPS_PER_YEAR`, 64).
+        Time steps **per year** (default :data:`DEFAULT_STEPS_PER_YEAR`, 64;
+        :data:`BARRIER_STEPS_PER_YEAR`, 256, for a continuously watched
+        barrier, whose bridge approximation needs the finer step).
         The grid runs through 0 and every fixing, monitoring, start and
         expiry date; each interval between consecutive dates gets
         ``max(1, ceil(steps x length))`` equal steps, so every date is a grid
@@ -469,7 +477,11 @@ def mc_exotic(
     div_yield = _scalar("div_yield", div_yield)
     check_choice("scheme", scheme, tuple(SCHEMES))
     check_choice("control", control, CONTROLS)
-    steps_per_year = DEFAULT_STEPS_PER_YEAR if steps is None else as_positive_int("steps", steps)
+    if steps is None:
+        watched = isinstance(product, BarrierOption) and product.continuous
+        steps_per_year = BARRIER_STEPS_PER_YEAR if watched else DEFAULT_STEPS_PER_YEAR
+    else:
+        steps_per_year = as_positive_int("steps", steps)
     if steps_per_year > MAX_STEPS_PER_YEAR:
         # the grid's arrays hold one number per step: refuse before allocating them
         raise InputError(f"steps must be <= {MAX_STEPS_PER_YEAR:,} a year, got {steps_per_year:,}")
