@@ -16,6 +16,7 @@ import numpy as np
 from scipy.interpolate import RectBivariateSpline
 
 from .fourier import heston_price
+from .heston_cf import log_return_cumulants
 from .params import HestonParams
 from .pde_adi import SCHEMES, march
 from .pde_grid import build_operators, spot_grid, variance_grid
@@ -35,6 +36,22 @@ DEFAULT_TOLERANCE = 1e-3
 SPOT_REACH = 8.0
 #: Variance domain reaches at least this (in 't Hout & Foulon 2010 use 5).
 VARIANCE_REACH = 5.0
+#: Spot domain also covers ``ln S0 + c1 +- LAW_REACH sqrt(c2)``, ``c1, c2`` the mean and
+#: variance of ``ln(S_T / S_0)`` (Fang & Oosterlee 2008, eq. 49, with L = 10 and without
+#: their ``sqrt(c4)`` term, which :func:`log_return_cumulants` does not give).
+LAW_REACH = 10.0
+#: A spot domain cut to ``MAX_LOG_WIDTH`` is still accepted while it covers
+#: ``ln S0 + c1 +- LEAST_LAW_REACH sqrt(c2)``; narrower, the result is "not converged".
+LEAST_LAW_REACH = 5.0
+#: Variance domain also covers this quantile of the exact law of ``v_T`` (Cox, Ingersoll &
+#: Ross 1985) and of the stationary law when that is higher.
+VARIANCE_QUANTILE = 1.0 - 1e-6
+#: Widest spot domain solved, in ``ln s`` (a factor e^30, about 1e13, from end to end; the
+#: default grid still prices the reproductions of tests/test_pde.py to its estimate there);
+#: a law wider than this is cut to it and the result is "not converged".
+MAX_LOG_WIDTH = 30.0
+#: Highest variance top solved; a law reaching higher is cut and the result "not converged".
+MAX_VARIANCE_TOP = 20.0
 #: Spot clustering width in ln s: this share of ``sqrt(max(v0, theta) T)``, within these limits.
 CLUSTER_SHARE = 0.25
 CLUSTER_LIMITS = (0.02, 0.2)
@@ -132,28 +149,71 @@ class _Problem:
     cash: float | None = None  # a cash-or-nothing digital paying this, instead of the vanilla
 
 
-def _domain(problem, spot, params):
-    """Spot interval, grid nodes and clustering centres; variance top.
+def _variance_quantile(params, maturity, q):
+    """Quantile ``q`` of the exact law of ``v_T``: ``c`` times a noncentral chi-square
+    (Cox, Ingersoll & Ross 1985; the shapes as in :func:`rootvar.core.cir_transition`)."""
+    from scipy.special import chndtrix
 
-    The spot interval stays away from ``s = 0``: the grid is uniform-like in
-    ``ln s`` (see :mod:`rootvar.core.pde_grid`).  A continuous barrier is an
-    edge; a discrete one, like the strike, a grid point inside.
+    p = params
+    c = p.vol_of_vol**2 * -np.expm1(-p.kappa * maturity) / (4.0 * p.kappa)
+    df = 4.0 * p.kappa * p.theta / p.vol_of_vol**2
+    nc = p.v0 * np.exp(-p.kappa * maturity) / c
+    return float(c * chndtrix(q, df, nc))
+
+
+def _domain(problem, spot, params, drift):
+    """Spot interval, grid nodes and clustering centres; variance top; what was cut.
+
+    The spot interval is the union of ``[min(K, S, B) / 8, 8 max(K, S, B)]``
+    and the law's range ``ln S + c1 +- LAW_REACH sqrt(c2)`` (Fang & Oosterlee
+    2008, eq. 49), so it widens with the total variance and never narrows
+    below the fixed factor.  It stays away from ``s = 0``: the grid is
+    uniform-like in ``ln s`` (see :mod:`rootvar.core.pde_grid`).  A continuous
+    barrier is an edge; a discrete one, like the strike, a grid point inside.
+    The variance top is the larger of ``max(5, 5 v0, 5 theta)`` and the
+    ``VARIANCE_QUANTILE`` quantile of ``v_T``.  A range wider than
+    ``MAX_LOG_WIDTH`` in ``ln s`` or higher than ``MAX_VARIANCE_TOP`` is cut
+    there; the returned list names each cut (the result cannot be certified).
     """
     k = problem.strike
     levels = [k, spot] + ([problem.barrier] if problem.barrier is not None else [])
-    low, high, nodes = min(levels) / SPOT_REACH, SPOT_REACH * max(levels), [k]
+    low, high = np.log(min(levels) / SPOT_REACH), np.log(SPOT_REACH * max(levels))
+    c1, c2 = log_return_cumulants(params, problem.maturity, drift)
+    centre, half = np.log(spot) + float(c1), LAW_REACH * float(np.sqrt(c2))
+    lo, hi = min(low, centre - half), max(high, centre + half)
+    if hi - lo > MAX_LOG_WIDTH:
+        # the law's range alone is cut to the widest grid, centred on its mean
+        lo = min(low, centre - 0.5 * MAX_LOG_WIDTH)
+        hi = max(high, centre + 0.5 * MAX_LOG_WIDTH)
+    # a range still covering +-LEAST_LAW_REACH standard deviations is accepted
+    least = LEAST_LAW_REACH * float(np.sqrt(c2))
+    cut_low, cut_high = centre - least < lo - 1e-12, centre + least > hi + 1e-12
+    low, high = float(np.exp(lo)), float(np.exp(hi))
+    nodes = [k]
     centres = [k, spot]
     if problem.barrier is not None:
         centres.append(problem.barrier)
         if problem.dates is None and problem.direction == "down":
-            low = problem.barrier
+            low, cut_low = problem.barrier, False
         elif problem.dates is None:
-            high = problem.barrier
+            high, cut_high = problem.barrier, False
         else:
             nodes.append(problem.barrier)
+    cuts = []
+    if cut_low or cut_high:
+        cuts.append(
+            f"spot domain cut to e^{MAX_LOG_WIDTH:g} from end to end, short of the mean of "
+            f"ln S_T +-{LEAST_LAW_REACH:g} x its standard deviation {float(np.sqrt(c2)):.3g}"
+        )
     nodes = [x for x in nodes if low < x < high]
     v_max = max(VARIANCE_REACH, 5.0 * params.v0, 5.0 * params.theta)
-    return low, high, nodes, centres, v_max
+    v_max = max(v_max, _variance_quantile(params, problem.maturity, VARIANCE_QUANTILE))
+    if v_max > MAX_VARIANCE_TOP:
+        cuts.append(
+            f"variance domain cut to {MAX_VARIANCE_TOP:g}; the law of v_T asks for {v_max:.3g}"
+        )
+        v_max = MAX_VARIANCE_TOP
+    return low, high, nodes, centres, v_max, cuts
 
 
 def _cluster_width(params, product):
@@ -441,7 +501,7 @@ def pde_price(
     else:
         problem = _Problem(product.kind, product.strike, product.maturity)
 
-    low, high, nodes, centres, v_max = _domain(problem, spot, params)
+    low, high, nodes, centres, v_max, cuts = _domain(problem, spot, params, rate - div_yield)
     width = _cluster_width(params, product)
     s_fine = spot_grid(low, high, nodes, centres, width, sizes[0], 4)
     v_fine = variance_grid(v_max, sizes[1], 4)
@@ -473,6 +533,17 @@ def pde_price(
         prices = tuple(base - p for p in prices)
         difference = -difference
         solution = None
+    lower, upper = _bounds(product, spot, rate, div_yield)
+    reasons = list(cuts)
+    if not lower - tol <= price <= upper + tol:
+        reasons.append(
+            f"price {price:.6g} lies outside the no-arbitrage bounds [{lower:.6g}, {upper:.6g}] "
+            "by more than the tolerance"
+        )
+    if reasons:
+        # refinement cannot see a cut domain or a bound broken by the scheme: not settled
+        status = NOT_CONVERGED if status == CONVERGED else status
+        note = "; ".join(([note] if note else []) + reasons)
     return PDEResult(
         price=float(price),
         error_estimate=float(error),
@@ -495,6 +566,27 @@ def pde_price(
         v=v_fine if solution is not None else None,
         values=solution,
     )
+
+
+def _bounds(product, spot, rate, div_yield):
+    """No-arbitrage bounds on the price today (common practice, no source).
+
+    Europeans: ``max(S e^{-qT} - K e^{-rT}, 0) <= C <= S e^{-qT}`` and
+    ``max(K e^{-rT} - S e^{-qT}, 0) <= P <= K e^{-rT}``; a digital lies in
+    ``[0, cash e^{-rT}]``; a barrier option in ``[0, vanilla's upper bound +
+    rebate x max(1, e^{-rT})]`` (the rebate is paid at the hit or at expiry).
+    """
+    t = product.maturity
+    grow, carry = np.exp(-rate * t), np.exp(-div_yield * t)
+    if isinstance(product, DigitalOption):
+        return 0.0, product.cash * grow
+    if product.kind == "call":
+        lower, upper = max(spot * carry - product.strike * grow, 0.0), spot * carry
+    else:
+        lower, upper = max(product.strike * grow - spot * carry, 0.0), product.strike * grow
+    if isinstance(product, BarrierOption):
+        lower, upper = 0.0, upper + product.rebate * max(1.0, grow)
+    return float(lower), float(upper)
 
 
 def _knocked(params, spot, product, rate, div_yield, tol, method, start):
