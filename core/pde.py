@@ -106,7 +106,9 @@ class PDEResult:
     method : str
         Scheme, damping and grid description.
     note : str
-        How the value was obtained (parity for knock-ins, knocked state).
+        How the value was obtained (parity for knock-ins, knocked state), and
+        why a result is "not converged" when refinement cannot see it (a cut
+        domain, a price outside its no-arbitrage bounds).
     s, v, values : ndarray or None
         Finest grid and the solution on it, ``values[j, i]`` at ``(v[j], s[i])``
         (None when no grid was solved for the product itself).
@@ -434,10 +436,14 @@ def pde_price(
               + \\tfrac12\\sigma^2 v u_{vv} + (r - q) s u_s
               + \\kappa(\\theta - v) u_v - r u,
 
-    solved in ``x = ln s`` on a spot grid from ``min(K, S, B) / 8`` to
-    ``8 max(K, S, B)``, dense at the strike, barrier and spot (``asinh``
-    clustering in ``ln s``, strike and barrier on grid points), and a variance
-    grid dense at ``v = 0`` (``sinh`` map).  The mixed derivative is the
+    solved in ``x = ln s`` on a spot grid covering ``min(K, S, B) / 8`` to
+    ``8 max(K, S, B)`` and the law's range ``ln S + c1 +- 10 sqrt(c2)``
+    (``c1, c2`` the mean and variance of ``ln(S_T / S)``; Fang & Oosterlee
+    2008, eq. 49), at most ``e^30`` from end to end, dense at the strike,
+    barrier and spot (``asinh`` clustering in ``ln s``, strike and barrier on
+    grid points), and a variance grid dense at ``v = 0`` (``sinh`` map) up to
+    the larger of ``max(5, 5 v0, 5 theta)`` and the ``1 - 1e-6`` quantile of
+    ``v_T``, at most 20.  The mixed derivative is the
     seven-point stencil oriented by the sign of ``rho``.  Boundaries: see
     :mod:`rootvar.core.pde_grid`.
     Continuous barriers are the edge of the spot grid with ``u = rebate``;
@@ -453,7 +459,11 @@ def pde_price(
     ``|d1| / 3``; otherwise the price is ``P0`` and the estimate ``|d1|``
     (order >= 1), ``|d1| / (2^p - 1)`` (order ``p`` in (0, 1)) or
     ``|d1| + |d2|`` (no order).  The status is "not converged" when the
-    estimate exceeds ``tolerance x spot``.
+    estimate exceeds ``tolerance x spot``, and also when refinement cannot
+    see the error: the spot domain had to be cut short of ``+-5 sqrt(c2)``
+    around the mean of ``ln S_T`` or the variance top short of the quantile,
+    or the price lies outside its no-arbitrage bounds by more than the
+    tolerance; ``note`` gives the reason.
 
     References
     ----------
@@ -464,6 +474,11 @@ def pde_price(
     irregular data. Numer. Math. 43, 309-327.
     Giles, M. B. & Carter, R. (2006). Convergence analysis of Crank-Nicolson
     and Rannacher time-marching. J. Comput. Finance 9(4), 89-112.
+    Fang, F. & Oosterlee, C. W. (2008). A novel pricing method for European
+    options based on Fourier-cosine series expansions. SIAM J. Sci. Comput.
+    31(2), 826-848 (truncation range, eq. 49).
+    Cox, J. C., Ingersoll, J. E. & Ross, S. A. (1985). A theory of the term
+    structure of interest rates. Econometrica 53(2), 385-407 (law of v_T).
     Richardson, L. F. (1911). The approximate arithmetical solution by finite
     differences of physical problems. Phil. Trans. R. Soc. A 210, 307-357.
     """
