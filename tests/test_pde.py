@@ -656,3 +656,16 @@ def test_every_converged_european_of_a_wide_sweep_is_within_its_estimate():
         ref = float(heston_price(params, SPOT, strike, maturity, 0.0, 0.0, kind))
         assert abs(res.price - ref) <= 3 * res.error_estimate + TOL, (params, kind, strike)
     assert converged >= 12  # the sweep checks something: 17 of 30 converge today
+
+
+def test_a_variance_law_beyond_the_highest_top_is_not_converged():
+    # kappa 0.1, theta 1, vol_of_vol 1.5, 30 years: the 1 - 1e-6 quantile of v_T is about 100
+    # (scipy.special.chndtrix, the Cox, Ingersoll & Ross 1985 law), above the top of 20
+    from scipy.special import chndtrix
+
+    params = HestonParams(0.01, 0.1, 1.0, 1.5, -0.3)
+    c = 1.5**2 * (1 - math.exp(-0.1 * 30.0)) / 0.4
+    assert c * chndtrix(1 - 1e-6, 0.4 / 1.5**2, 0.01 * math.exp(-3.0) / c) > 20.0
+    res = pde_price(params, SPOT, EuropeanOption("call", 100.0, 30.0))
+    assert res.status == "not converged"
+    assert "variance domain cut" in res.note
