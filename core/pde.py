@@ -16,6 +16,7 @@ import numpy as np
 from scipy.interpolate import RectBivariateSpline
 
 from .fourier import heston_price
+from .heston_cf import log_return_cumulants
 from .params import HestonParams
 from .pde_adi import SCHEMES, march
 from .pde_grid import build_operators, spot_grid, variance_grid
@@ -35,6 +36,22 @@ DEFAULT_TOLERANCE = 1e-3
 SPOT_REACH = 8.0
 #: Variance domain reaches at least this (in 't Hout & Foulon 2010 use 5).
 VARIANCE_REACH = 5.0
+#: Spot domain also covers ``ln S0 + c1 +- LAW_REACH sqrt(c2)``, ``c1, c2`` the mean and
+#: variance of ``ln(S_T / S_0)`` (Fang & Oosterlee 2008, eq. 49, with L = 10 and without
+#: their ``sqrt(c4)`` term, which :func:`log_return_cumulants` does not give).
+LAW_REACH = 10.0
+#: A spot domain cut to ``MAX_LOG_WIDTH`` is still accepted while it covers
+#: ``ln S0 + c1 +- LEAST_LAW_REACH sqrt(c2)``; narrower, the result is "not converged".
+LEAST_LAW_REACH = 5.0
+#: Variance domain also covers this quantile of the exact law of ``v_T`` (Cox, Ingersoll &
+#: Ross 1985) and of the stationary law when that is higher.
+VARIANCE_QUANTILE = 1.0 - 1e-6
+#: Widest spot domain solved, in ``ln s`` (a factor e^30, about 1e13, from end to end; the
+#: default grid still prices the reproductions of tests/test_pde.py to its estimate there);
+#: a law wider than this is cut to it and the result is "not converged".
+MAX_LOG_WIDTH = 30.0
+#: Highest variance top solved; a law reaching higher is cut and the result "not converged".
+MAX_VARIANCE_TOP = 20.0
 #: Spot clustering width in ln s: this share of ``sqrt(max(v0, theta) T)``, within these limits.
 CLUSTER_SHARE = 0.25
 CLUSTER_LIMITS = (0.02, 0.2)
@@ -89,7 +106,9 @@ class PDEResult:
     method : str
         Scheme, damping and grid description.
     note : str
-        How the value was obtained (parity for knock-ins, knocked state).
+        How the value was obtained (parity for knock-ins, knocked state), and
+        why a result is "not converged" when refinement cannot see it (a cut
+        domain, a price outside its no-arbitrage bounds).
     s, v, values : ndarray or None
         Finest grid and the solution on it, ``values[j, i]`` at ``(v[j], s[i])``
         (None when no grid was solved for the product itself).
@@ -132,28 +151,71 @@ class _Problem:
     cash: float | None = None  # a cash-or-nothing digital paying this, instead of the vanilla
 
 
-def _domain(problem, spot, params):
-    """Spot interval, grid nodes and clustering centres; variance top.
+def _variance_quantile(params, maturity, q):
+    """Quantile ``q`` of the exact law of ``v_T``: ``c`` times a noncentral chi-square
+    (Cox, Ingersoll & Ross 1985; the shapes as in :func:`rootvar.core.cir_transition`)."""
+    from scipy.special import chndtrix
 
-    The spot interval stays away from ``s = 0``: the grid is uniform-like in
-    ``ln s`` (see :mod:`rootvar.core.pde_grid`).  A continuous barrier is an
-    edge; a discrete one, like the strike, a grid point inside.
+    p = params
+    c = p.vol_of_vol**2 * -np.expm1(-p.kappa * maturity) / (4.0 * p.kappa)
+    df = 4.0 * p.kappa * p.theta / p.vol_of_vol**2
+    nc = p.v0 * np.exp(-p.kappa * maturity) / c
+    return float(c * chndtrix(q, df, nc))
+
+
+def _domain(problem, spot, params, drift):
+    """Spot interval, grid nodes and clustering centres; variance top; what was cut.
+
+    The spot interval is the union of ``[min(K, S, B) / 8, 8 max(K, S, B)]``
+    and the law's range ``ln S + c1 +- LAW_REACH sqrt(c2)`` (Fang & Oosterlee
+    2008, eq. 49), so it widens with the total variance and never narrows
+    below the fixed factor.  It stays away from ``s = 0``: the grid is
+    uniform-like in ``ln s`` (see :mod:`rootvar.core.pde_grid`).  A continuous
+    barrier is an edge; a discrete one, like the strike, a grid point inside.
+    The variance top is the larger of ``max(5, 5 v0, 5 theta)`` and the
+    ``VARIANCE_QUANTILE`` quantile of ``v_T``.  A range wider than
+    ``MAX_LOG_WIDTH`` in ``ln s`` or higher than ``MAX_VARIANCE_TOP`` is cut
+    there; the returned list names each cut (the result cannot be certified).
     """
     k = problem.strike
     levels = [k, spot] + ([problem.barrier] if problem.barrier is not None else [])
-    low, high, nodes = min(levels) / SPOT_REACH, SPOT_REACH * max(levels), [k]
+    low, high = np.log(min(levels) / SPOT_REACH), np.log(SPOT_REACH * max(levels))
+    c1, c2 = log_return_cumulants(params, problem.maturity, drift)
+    centre, half = np.log(spot) + float(c1), LAW_REACH * float(np.sqrt(c2))
+    lo, hi = min(low, centre - half), max(high, centre + half)
+    if hi - lo > MAX_LOG_WIDTH:
+        # the law's range alone is cut to the widest grid, centred on its mean
+        lo = min(low, centre - 0.5 * MAX_LOG_WIDTH)
+        hi = max(high, centre + 0.5 * MAX_LOG_WIDTH)
+    # a range still covering +-LEAST_LAW_REACH standard deviations is accepted
+    least = LEAST_LAW_REACH * float(np.sqrt(c2))
+    cut_low, cut_high = centre - least < lo - 1e-12, centre + least > hi + 1e-12
+    low, high = float(np.exp(lo)), float(np.exp(hi))
+    nodes = [k]
     centres = [k, spot]
     if problem.barrier is not None:
         centres.append(problem.barrier)
         if problem.dates is None and problem.direction == "down":
-            low = problem.barrier
+            low, cut_low = problem.barrier, False
         elif problem.dates is None:
-            high = problem.barrier
+            high, cut_high = problem.barrier, False
         else:
             nodes.append(problem.barrier)
+    cuts = []
+    if cut_low or cut_high:
+        cuts.append(
+            f"spot domain cut to e^{MAX_LOG_WIDTH:g} from end to end, short of the mean of "
+            f"ln S_T +-{LEAST_LAW_REACH:g} x its standard deviation {float(np.sqrt(c2)):.3g}"
+        )
     nodes = [x for x in nodes if low < x < high]
     v_max = max(VARIANCE_REACH, 5.0 * params.v0, 5.0 * params.theta)
-    return low, high, nodes, centres, v_max
+    v_max = max(v_max, _variance_quantile(params, problem.maturity, VARIANCE_QUANTILE))
+    if v_max > MAX_VARIANCE_TOP:
+        cuts.append(
+            f"variance domain cut to {MAX_VARIANCE_TOP:g}; the law of v_T asks for {v_max:.3g}"
+        )
+        v_max = MAX_VARIANCE_TOP
+    return low, high, nodes, centres, v_max, cuts
 
 
 def _cluster_width(params, product):
@@ -374,10 +436,14 @@ def pde_price(
               + \\tfrac12\\sigma^2 v u_{vv} + (r - q) s u_s
               + \\kappa(\\theta - v) u_v - r u,
 
-    solved in ``x = ln s`` on a spot grid from ``min(K, S, B) / 8`` to
-    ``8 max(K, S, B)``, dense at the strike, barrier and spot (``asinh``
-    clustering in ``ln s``, strike and barrier on grid points), and a variance
-    grid dense at ``v = 0`` (``sinh`` map).  The mixed derivative is the
+    solved in ``x = ln s`` on a spot grid covering ``min(K, S, B) / 8`` to
+    ``8 max(K, S, B)`` and the law's range ``ln S + c1 +- 10 sqrt(c2)``
+    (``c1, c2`` the mean and variance of ``ln(S_T / S)``; Fang & Oosterlee
+    2008, eq. 49), at most ``e^30`` from end to end, dense at the strike,
+    barrier and spot (``asinh`` clustering in ``ln s``, strike and barrier on
+    grid points), and a variance grid dense at ``v = 0`` (``sinh`` map) up to
+    the larger of ``max(5, 5 v0, 5 theta)`` and the ``1 - 1e-6`` quantile of
+    ``v_T``, at most 20.  The mixed derivative is the
     seven-point stencil oriented by the sign of ``rho``.  Boundaries: see
     :mod:`rootvar.core.pde_grid`.
     Continuous barriers are the edge of the spot grid with ``u = rebate``;
@@ -393,7 +459,11 @@ def pde_price(
     ``|d1| / 3``; otherwise the price is ``P0`` and the estimate ``|d1|``
     (order >= 1), ``|d1| / (2^p - 1)`` (order ``p`` in (0, 1)) or
     ``|d1| + |d2|`` (no order).  The status is "not converged" when the
-    estimate exceeds ``tolerance x spot``.
+    estimate exceeds ``tolerance x spot``, and also when refinement cannot
+    see the error: the spot domain had to be cut short of ``+-5 sqrt(c2)``
+    around the mean of ``ln S_T`` or the variance top short of the quantile,
+    or the price lies outside its no-arbitrage bounds by more than the
+    tolerance; ``note`` gives the reason.
 
     References
     ----------
@@ -404,6 +474,11 @@ def pde_price(
     irregular data. Numer. Math. 43, 309-327.
     Giles, M. B. & Carter, R. (2006). Convergence analysis of Crank-Nicolson
     and Rannacher time-marching. J. Comput. Finance 9(4), 89-112.
+    Fang, F. & Oosterlee, C. W. (2008). A novel pricing method for European
+    options based on Fourier-cosine series expansions. SIAM J. Sci. Comput.
+    31(2), 826-848 (truncation range, eq. 49).
+    Cox, J. C., Ingersoll, J. E. & Ross, S. A. (1985). A theory of the term
+    structure of interest rates. Econometrica 53(2), 385-407 (law of v_T).
     Richardson, L. F. (1911). The approximate arithmetical solution by finite
     differences of physical problems. Phil. Trans. R. Soc. A 210, 307-357.
     """
@@ -441,7 +516,7 @@ def pde_price(
     else:
         problem = _Problem(product.kind, product.strike, product.maturity)
 
-    low, high, nodes, centres, v_max = _domain(problem, spot, params)
+    low, high, nodes, centres, v_max, cuts = _domain(problem, spot, params, rate - div_yield)
     width = _cluster_width(params, product)
     s_fine = spot_grid(low, high, nodes, centres, width, sizes[0], 4)
     v_fine = variance_grid(v_max, sizes[1], 4)
@@ -473,6 +548,17 @@ def pde_price(
         prices = tuple(base - p for p in prices)
         difference = -difference
         solution = None
+    lower, upper = _bounds(product, spot, rate, div_yield)
+    reasons = list(cuts)
+    if not lower - tol <= price <= upper + tol:
+        reasons.append(
+            f"price {price:.6g} lies outside the no-arbitrage bounds [{lower:.6g}, {upper:.6g}] "
+            "by more than the tolerance"
+        )
+    if reasons:
+        # refinement cannot see a cut domain or a bound broken by the scheme: not settled
+        status = NOT_CONVERGED if status == CONVERGED else status
+        note = "; ".join(([note] if note else []) + reasons)
     return PDEResult(
         price=float(price),
         error_estimate=float(error),
@@ -495,6 +581,27 @@ def pde_price(
         v=v_fine if solution is not None else None,
         values=solution,
     )
+
+
+def _bounds(product, spot, rate, div_yield):
+    """No-arbitrage bounds on the price today (common practice, no source).
+
+    Europeans: ``max(S e^{-qT} - K e^{-rT}, 0) <= C <= S e^{-qT}`` and
+    ``max(K e^{-rT} - S e^{-qT}, 0) <= P <= K e^{-rT}``; a digital lies in
+    ``[0, cash e^{-rT}]``; a barrier option in ``[0, vanilla's upper bound +
+    rebate x max(1, e^{-rT})]`` (the rebate is paid at the hit or at expiry).
+    """
+    t = product.maturity
+    grow, carry = np.exp(-rate * t), np.exp(-div_yield * t)
+    if isinstance(product, DigitalOption):
+        return 0.0, product.cash * grow
+    if product.kind == "call":
+        lower, upper = max(spot * carry - product.strike * grow, 0.0), spot * carry
+    else:
+        lower, upper = max(product.strike * grow - spot * carry, 0.0), product.strike * grow
+    if isinstance(product, BarrierOption):
+        lower, upper = 0.0, upper + product.rebate * max(1.0, grow)
+    return float(lower), float(upper)
 
 
 def _knocked(params, spot, product, rate, div_yield, tol, method, start):

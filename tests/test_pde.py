@@ -551,3 +551,121 @@ def test_cash_scales_the_pde_digital():
     one = pde_price(FO, 100.0, DigitalOption("call", 100.0, 1.0)).price
     many = pde_price(FO, 100.0, DigitalOption("call", 100.0, 1.0, cash=25.0)).price
     assert many == pytest.approx(25.0 * one, rel=1e-12)
+
+
+# ------------------------------------------------------------------ domain from the law
+
+
+# Reproductions where the former fixed domain ([min/8, 8 max] in the spot, variance top 5)
+# gave "converged" prices far from the certified Fourier price (found by fuzzing).
+DOMAIN_CASES = {
+    "high variance put": (HestonParams(0.9, 1.5, 0.9, 0.5, 0.0), "put", 8.73),
+    "100-year call": (HestonParams(0.04, 1.5, 0.04, 0.5, -0.7), "call", 100.0),
+    "1000-year call": (HestonParams(0.04, 1.5, 0.04, 0.5, -0.7), "call", 1000.0),
+}
+
+
+@pytest.mark.parametrize("name", sorted(DOMAIN_CASES))
+def test_wide_laws_are_priced_within_the_estimate_or_not_converged(name):
+    # reference: the certified COS price (Fang & Oosterlee 2008, SIAM J. Sci. Comput. 31(2))
+    params, kind, maturity = DOMAIN_CASES[name]
+    res = pde_price(params, SPOT, EuropeanOption(kind, 100.0, maturity))
+    ref = float(heston_price(params, SPOT, 100.0, maturity, 0.0, 0.0, kind))
+    assert res.status in ("converged", "not converged")
+    if res.converged:
+        assert abs(res.price - ref) <= res.error_estimate + TOL
+    else:
+        assert res.note  # the reason is given
+
+
+def test_a_law_wider_than_the_grid_can_hold_is_not_converged():
+    # the 1000-year call: sd of ln S_T about 7.1, so +-5 sd needs e^71 > e^30 (MAX_LOG_WIDTH)
+    params, kind, maturity = DOMAIN_CASES["1000-year call"]
+    res = pde_price(params, SPOT, EuropeanOption(kind, 100.0, maturity))
+    assert res.status == "not converged"
+    assert "spot domain cut" in res.note
+
+
+@pytest.mark.parametrize("rate", [-0.1, 0.1])
+def test_long_knock_out_stays_within_its_bounds(rate):
+    # fuzzer case: the former domain gave -0.060 "converged" at rate +0.1. Bounds (common
+    # practice, no source): 0 <= down-and-out put <= the vanilla put (certified COS price).
+    # Monte Carlo (mc_exotic, QE, 40,000 paths, 512-2,048 steps) gave 0.095-0.104 +- 0.017
+    # (rate -0.1) and 0.035-0.045 +- 0.005 (rate 0.1): too slow for a test at 8.73 years.
+    params = HestonParams(0.58, 8.73, 0.9, 0.65, 0.0)
+    product = BarrierOption("put", 198.7, 8.73, 110.8, "down", "out")
+    res = pde_price(params, 221.5, product, rate)
+    vanilla = float(heston_price(params, 221.5, 198.7, 8.73, rate, 0.0, "put"))
+    if res.converged:
+        assert 0.0 <= res.price <= vanilla
+    else:
+        assert res.note
+
+
+def test_price_outside_the_bounds_is_not_converged(monkeypatch):
+    # the bounds check is wired to the status: bounds that exclude a settled price flag it
+    import rootvar.core.pde as pde
+
+    product = EuropeanOption("call", 100.0, 1.0)
+    settled = pde_price(FO, SPOT, product)
+    assert settled.status == "converged"
+    monkeypatch.setattr(pde, "_bounds", lambda *a: (settled.price + 1.0, settled.price + 2.0))
+    res = pde_price(FO, SPOT, product)
+    assert res.status == "not converged"
+    assert "no-arbitrage bounds" in res.note
+
+
+def test_domain_is_never_narrower_than_the_fixed_factor_and_covers_the_variance_law():
+    # spot domain at least [min(K, S) / 8, 8 max(K, S)]; variance top at least the 1 - 1e-6
+    # quantile of v_T (scipy.stats.ncx2, the Cox, Ingersoll & Ross 1985 transition law)
+    from scipy.stats import ncx2
+
+    params = HestonParams(0.05, 0.5, 0.6, 1.2, -0.5)  # v_T reaches far above 5 at 5 years
+    res = pde_price(params, SPOT, EuropeanOption("put", 80.0, 5.0))
+    assert res.s[0] <= 80.0 / 8 * (1 + 1e-12) and res.s[-1] >= 8 * SPOT * (1 - 1e-12)
+    k, t, sig = params.kappa, 5.0, params.vol_of_vol
+    c = sig**2 * (1 - math.exp(-k * t)) / (4 * k)
+    far = c * ncx2.ppf(1 - 1e-6, 4 * k * params.theta / sig**2, params.v0 * math.exp(-k * t) / c)
+    assert far > 5.0
+    assert res.v[-1] >= far * (1 - 1e-9)
+
+
+def _random_europeans(count=30, seed=14):
+    """Seeded Europeans over wide boxes: v0, theta in [0.01, 1], kappa [0.1, 10], vol_of_vol
+    [0.1, 1.5], rho [-0.95, 0.5], maturity [0.1, 30], strike / spot [0.5, 2]."""
+    rng = np.random.default_rng(seed)
+    for i in range(count):
+        v0, theta = rng.uniform(0.01, 1.0, 2)
+        params = HestonParams(
+            v0, rng.uniform(0.1, 10.0), theta, rng.uniform(0.1, 1.5), rng.uniform(-0.95, 0.5)
+        )
+        maturity, strike = rng.uniform(0.1, 30.0), SPOT * rng.uniform(0.5, 2.0)
+        yield params, ("call", "put")[i % 2], strike, maturity
+
+
+def test_every_converged_european_of_a_wide_sweep_is_within_its_estimate():
+    # reference: certified COS prices. With the former fixed domain 20 of these 30 were
+    # "converged" yet off by more than 3 x estimate + 1e-3 x spot.
+    converged = 0
+    for params, kind, strike, maturity in _random_europeans():
+        res = pde_price(params, SPOT, EuropeanOption(kind, strike, maturity))
+        if not res.converged:
+            assert res.status == "not converged"
+            continue
+        converged += 1
+        ref = float(heston_price(params, SPOT, strike, maturity, 0.0, 0.0, kind))
+        assert abs(res.price - ref) <= 3 * res.error_estimate + TOL, (params, kind, strike)
+    assert converged >= 12  # the sweep checks something: 17 of 30 converge today
+
+
+def test_a_variance_law_beyond_the_highest_top_is_not_converged():
+    # kappa 0.1, theta 1, vol_of_vol 1.5, 30 years: the 1 - 1e-6 quantile of v_T is about 100
+    # (scipy.special.chndtrix, the Cox, Ingersoll & Ross 1985 law), above the top of 20
+    from scipy.special import chndtrix
+
+    params = HestonParams(0.01, 0.1, 1.0, 1.5, -0.3)
+    c = 1.5**2 * (1 - math.exp(-0.1 * 30.0)) / 0.4
+    assert c * chndtrix(1 - 1e-6, 0.4 / 1.5**2, 0.01 * math.exp(-3.0) / c) > 20.0
+    res = pde_price(params, SPOT, EuropeanOption("call", 100.0, 30.0))
+    assert res.status == "not converged"
+    assert "variance domain cut" in res.note
