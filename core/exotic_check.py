@@ -38,7 +38,7 @@ from .products import (
     EuropeanOption,
     ForwardStartOption,
 )
-from .validation import InputError, as_float_array, as_positive_int, check_choice
+from .validation import InputError, as_float, as_positive_int, check_choice
 from .verdict import (
     BIASED,
     CONSISTENT,
@@ -195,13 +195,6 @@ class ExoticComparison:
 
 
 _PRODUCTS = (EuropeanOption, BarrierOption, AsianOption, ForwardStartOption, DigitalOption)
-
-
-def _scalar(name, value, *rules):
-    arr = as_float_array(name, value, *rules)
-    if arr.ndim:
-        raise InputError(f"{name} must be a single number, got shape {arr.shape}")
-    return float(arr)
 
 
 def _matching_vanilla(product, spot):
@@ -496,14 +489,14 @@ def compare_exotic(
     if not isinstance(product, _PRODUCTS):
         names = ", ".join(p.__name__ for p in _PRODUCTS)
         raise InputError(f"product must be one of {names}, got {type(product).__name__}")
-    spot = _scalar("spot", spot, ">0")
-    rate = _scalar("rate", rate)
-    div_yield = _scalar("div_yield", div_yield)
-    z = _scalar("z", z, ">0")
+    spot = as_float("spot", spot, ">0")
+    rate = as_float("rate", rate)
+    div_yield = as_float("div_yield", div_yield)
+    z = as_float("z", z, ">0")
     if z > MAX_Z:
         raise InputError(f"z must be <= {MAX_Z:g} standard errors, got {z!r}")
     if tolerance is not None:
-        tol = _scalar("tolerance", tolerance, ">0")
+        tol = as_float("tolerance", tolerance, ">0")
         scale = f"{tol / spot:.3%} of spot"
     elif isinstance(product, DigitalOption):
         tol = DEFAULT_DIGITAL_TOLERANCE_SHARE * product.cash
@@ -519,7 +512,7 @@ def compare_exotic(
     if pde_tolerance is None:
         pde_tolerance = PDE_SHARE * tol / spot
     else:
-        pde_tolerance = _scalar("pde_tolerance", pde_tolerance, ">0")
+        pde_tolerance = as_float("pde_tolerance", pde_tolerance, ">0")
 
     source = "given" if scheme is not None or steps is not None else "default"
     if mc_result is None:

@@ -36,7 +36,14 @@ from .fourier_check import lewis_call_price
 from .heston_cf import heston_log_cf, log_return_cumulants
 from .numba_setup import numba
 from .params import HestonParams
-from .validation import InputError, as_float_array, broadcast, check_choice, scalar_or_array
+from .validation import (
+    InputError,
+    as_float,
+    as_float_array,
+    broadcast,
+    check_choice,
+    scalar_or_array,
+)
 
 __all__ = ["FourierDetails", "heston_implied_vol", "heston_price", "heston_price_details"]
 
@@ -463,20 +470,13 @@ def _validated(params, spot, strike, maturity, rate, div_yield, kind, method):
         raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
     check_choice("kind", kind, _KINDS)
     check_choice("method", method, _METHODS)
-    spot = float(_scalar("spot", spot, ">0"))
-    rate = float(_scalar("rate", rate))
-    div_yield = float(_scalar("div_yield", div_yield))
+    spot = as_float("spot", spot, ">0")
+    rate = as_float("rate", rate)
+    div_yield = as_float("div_yield", div_yield)
     strike = as_float_array("strike", strike, ">0")
     maturity = as_float_array("maturity", maturity, ">0")
     strike, maturity = broadcast(strike=strike, maturity=maturity)
     return spot, strike, maturity, rate, div_yield
-
-
-def _scalar(name, value, *rules):
-    arr = as_float_array(name, value, *rules)
-    if arr.ndim:
-        raise InputError(f"{name} must be a single number, got shape {arr.shape}")
-    return arr
 
 
 def _call_from_put(put, spot_df, strike_df):

@@ -37,7 +37,7 @@ from .fourier import MAX_TERMS, RANGE_TOL, SERIES_TOL, _CosSeries
 from .joint_cf import joint_log_mgf
 from .params import HestonParams
 from .products import AsianOption, ForwardStartOption
-from .validation import InputError, as_float_array
+from .validation import InputError, as_float
 
 #: Frequencies per evaluation of the joint characteristic function (bounds temporaries).
 CF_CHUNK = 1 << 13
@@ -49,17 +49,10 @@ class FourierConvergenceError(ArithmeticError):
     """The Fourier series could not be certified to its tolerance."""
 
 
-def _scalar(name, value, *rules):
-    arr = as_float_array(name, value, *rules)
-    if arr.ndim:
-        raise InputError(f"{name} must be a single number, got shape {arr.shape}")
-    return float(arr)
-
-
 def _common(params, spot, rate, div_yield):
     if not isinstance(params, HestonParams):
         raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
-    return _scalar("spot", spot, ">0"), _scalar("rate", rate), _scalar("div_yield", div_yield)
+    return as_float("spot", spot, ">0"), as_float("rate", rate), as_float("div_yield", div_yield)
 
 
 def _in_chunks(log_cf, omega):

@@ -46,7 +46,7 @@ from .products import (
     EuropeanOption,
     ForwardStartOption,
 )
-from .validation import InputError, as_float_array, as_positive_int, check_choice
+from .validation import InputError, as_float, as_positive_int, check_choice
 
 #: Most steps a year a run accepts (one step every 5 minutes of a 24-hour year).
 MAX_STEPS_PER_YEAR = 100_000
@@ -120,13 +120,6 @@ class ExoticMCResult:
     negative_step_fraction: float
     notes: tuple = field(default_factory=tuple)
     market: tuple = ()
-
-
-def _scalar(name, value, *rules):
-    arr = as_float_array(name, value, *rules)
-    if arr.ndim:
-        raise InputError(f"{name} must be a single number, got shape {arr.shape}")
-    return float(arr)
 
 
 def _dates(product):
@@ -472,9 +465,9 @@ def mc_exotic(
     if not isinstance(product, _PRODUCTS):
         names = ", ".join(t.__name__ for t in _PRODUCTS)
         raise InputError(f"product must be one of {names}, got {type(product).__name__}")
-    spot = _scalar("spot", spot, ">0")
-    rate = _scalar("rate", rate)
-    div_yield = _scalar("div_yield", div_yield)
+    spot = as_float("spot", spot, ">0")
+    rate = as_float("rate", rate)
+    div_yield = as_float("div_yield", div_yield)
     check_choice("scheme", scheme, tuple(SCHEMES))
     check_choice("control", control, CONTROLS)
     if steps is None:

@@ -21,7 +21,7 @@ from .params import HestonParams
 from .pde_adi import SCHEMES, march
 from .pde_grid import build_operators, spot_grid, variance_grid
 from .products import BarrierOption, DigitalOption, EuropeanOption
-from .validation import InputError, as_float_array, as_positive_int, check_choice
+from .validation import InputError, as_float, as_positive_int, check_choice
 
 __all__ = ["DEFAULT_GRID", "PDEResult", "pde_price"]
 
@@ -343,10 +343,7 @@ def _validated(params, spot, product, rate, div_yield, grid, scheme, damping, to
         ("div_yield", div_yield, ()),
         ("tolerance", tolerance, (">0",)),
     ):
-        arr = as_float_array(name, value, *rules)
-        if arr.ndim != 0:
-            raise InputError(f"{name} must be a single number, got shape {arr.shape}")
-        values[name] = float(arr)
+        values[name] = as_float(name, value, *rules)
     if not isinstance(grid, (tuple, list)) or len(grid) != 3:
         raise InputError(f"grid must be (spot steps, variance steps, time steps), got {grid!r}")
     sizes = []

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .validation import InputError, as_float_array, check_choice
+from .validation import InputError, as_float, as_float_array, check_choice
 
 __all__ = [
     "AVERAGES",
@@ -31,13 +31,6 @@ KINDS = ("call", "put")
 DIRECTIONS = ("up", "down")
 KNOCKS = ("out", "in")
 AVERAGES = ("arithmetic", "geometric")
-
-
-def _positive(name: str, value) -> float:
-    arr = as_float_array(name, value, ">0")
-    if arr.ndim != 0:
-        raise InputError(f"{name} must be a single number, got shape {arr.shape}")
-    return float(arr)
 
 
 def _vanilla_payoff(kind: str, strike: float, spot_at_expiry):
@@ -64,8 +57,8 @@ class EuropeanOption:
 
     def __post_init__(self) -> None:
         check_choice("kind", self.kind, KINDS)
-        object.__setattr__(self, "strike", _positive("strike", self.strike))
-        object.__setattr__(self, "maturity", _positive("maturity", self.maturity))
+        object.__setattr__(self, "strike", as_float("strike", self.strike, ">0"))
+        object.__setattr__(self, "maturity", as_float("maturity", self.maturity, ">0"))
 
     def payoff(self, spot_at_expiry):
         """``max(S - K, 0)`` for a call, ``max(K - S, 0)`` for a put."""
@@ -120,11 +113,8 @@ class BarrierOption:
         check_choice("direction", self.direction, DIRECTIONS)
         check_choice("knock", self.knock, KNOCKS)
         for name in ("strike", "maturity", "barrier"):
-            object.__setattr__(self, name, _positive(name, getattr(self, name)))
-        rebate = as_float_array("rebate", self.rebate, ">=0")
-        if rebate.ndim != 0:
-            raise InputError(f"rebate must be a single number, got shape {rebate.shape}")
-        object.__setattr__(self, "rebate", float(rebate))
+            object.__setattr__(self, name, as_float(name, getattr(self, name), ">0"))
+        object.__setattr__(self, "rebate", as_float("rebate", self.rebate, ">=0"))
         if self.monitoring is not None:
             dates = np.ravel(as_float_array("monitoring", self.monitoring, ">0"))
             if dates.size == 0:
@@ -188,7 +178,7 @@ class AsianOption:
     def __post_init__(self) -> None:
         check_choice("kind", self.kind, KINDS)
         check_choice("average", self.average, AVERAGES)
-        object.__setattr__(self, "strike", _positive("strike", self.strike))
+        object.__setattr__(self, "strike", as_float("strike", self.strike, ">0"))
         dates = np.ravel(as_float_array("fixings", self.fixings, ">0"))
         if dates.size == 0:
             raise InputError("fixings must hold at least one date, got an empty list")
@@ -242,12 +232,9 @@ class ForwardStartOption:
 
     def __post_init__(self) -> None:
         check_choice("kind", self.kind, KINDS)
-        start = as_float_array("start", self.start, ">=0")
-        if start.ndim != 0:
-            raise InputError(f"start must be a single number, got shape {start.shape}")
-        object.__setattr__(self, "start", float(start))
-        object.__setattr__(self, "maturity", _positive("maturity", self.maturity))
-        object.__setattr__(self, "strike_share", _positive("strike_share", self.strike_share))
+        object.__setattr__(self, "start", as_float("start", self.start, ">=0"))
+        object.__setattr__(self, "maturity", as_float("maturity", self.maturity, ">0"))
+        object.__setattr__(self, "strike_share", as_float("strike_share", self.strike_share, ">0"))
         if self.maturity <= self.start:
             raise InputError(f"maturity must be > start={self.start!r}, got {self.maturity!r}")
 
@@ -289,7 +276,7 @@ class DigitalOption:
     def __post_init__(self) -> None:
         check_choice("kind", self.kind, KINDS)
         for name in ("strike", "maturity", "cash"):
-            object.__setattr__(self, name, _positive(name, getattr(self, name)))
+            object.__setattr__(self, name, as_float(name, getattr(self, name), ">0"))
 
     def payoff(self, spot_at_expiry):
         """``cash`` where the spot at expiry is beyond the strike, else 0."""

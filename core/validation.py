@@ -81,6 +81,14 @@ def as_float_array(name: str, value: object, *rules: str) -> np.ndarray:
     return arr
 
 
+def as_float(name: str, value: object, *rules: str) -> float:
+    """One number as a ``float``, after :func:`as_float_array`'s ``rules``; an array is refused."""
+    arr = as_float_array(name, value, *rules)
+    if arr.ndim:
+        raise InputError(f"{name} must be a single number, got shape {arr.shape}")
+    return float(arr)
+
+
 def as_positive_int(name: str, value: object) -> int:
     """Return ``value`` as a positive ``int``; refuse 2.5, 0, -3, True, "10"."""
     if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
