@@ -16,7 +16,7 @@ import warnings
 from concurrent.futures import ThreadPoolExecutor
 
 from . import cos_kernels, gradient_kernels, mc_exotic_kernels, mc_kernels
-from .numba_setup import numba
+from .numba_setup import CACHING, numba
 
 __all__ = [
     "CompileNotice",
@@ -46,14 +46,14 @@ class CompileNotice(UserWarning):
     """The kernels are being compiled because the on-disk cache is empty."""
 
 
-def kernels_cached() -> bool:
-    """True when every kernel is compiled in this process or has machine code on disk."""
-    for kernel in KERNELS:
+def kernels_cached(kernels=None) -> bool:
+    """True when each of ``kernels`` (default: all) is compiled in this process or on disk."""
+    for kernel in KERNELS if kernels is None else kernels:
         if kernel.signatures:
             continue
         try:
             index = kernel._cache._cache_file._index_path  # numba's own index file
-        except AttributeError:  # a numba without this layout: cannot tell, say nothing
+        except AttributeError:  # uncached, or a numba without this layout: cannot tell
             continue
         if not os.path.exists(index):
             return False
@@ -63,19 +63,26 @@ def kernels_cached() -> bool:
 _noticed = False
 
 
-def notice_if_cold() -> None:
-    """Warn once per process, before the first compile, that it takes a while."""
+def notice_if_cold(*kernels) -> None:
+    """Warn once per process, before a first compile of ``kernels``, that it takes a while.
+
+    Callers name the kernels they are about to call, so a process that never
+    needs a kernel is not told it compiles (a kernel is written to the disk
+    cache only when it is compiled, that is when it is first called).
+    """
     global _noticed
-    if _noticed:
+    if _noticed or kernels_cached(kernels or None):
         return
     _noticed = True
-    if not kernels_cached():
-        warnings.warn(
-            "rootvar: compiling the numerical kernels once for this machine (up to about a "
-            "minute); `rootvar compile` does it ahead of time",
-            CompileNotice,
-            stacklevel=3,
-        )
+    warnings.warn(
+        "rootvar: compiling the numerical kernels once for this machine (up to about a "
+        "minute); `rootvar compile` does it ahead of time"
+        if CACHING
+        else "rootvar: compiling the numerical kernels for this process (up to about a minute); "
+        "no folder here can keep them",
+        CompileNotice,
+        stacklevel=3,
+    )
 
 
 def compile_kernels() -> float:

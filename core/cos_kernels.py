@@ -13,7 +13,7 @@ import math
 
 import numpy as np
 
-from .numba_setup import numba
+from .numba_setup import njit
 
 __all__ = [
     "cf_array",
@@ -25,8 +25,6 @@ __all__ = [
     "principal_log",
     "principal_sqrt",
 ]
-
-njit = numba.njit
 
 
 @njit(cache=True, inline="always")

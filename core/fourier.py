@@ -30,6 +30,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .black_scholes import implied_vol_reason
+from .brief_repr import BriefRepr
 from .compiled import notice_if_cold, thread_pool
 from .cos_kernels import cf_array, cos_coefficients, cos_puts, flat_coefficients, flat_sums
 from .fourier_check import lewis_call_price
@@ -60,8 +61,8 @@ PRICE_FLOOR = 1e-9
 MAX_TERMS = 1 << 19
 
 
-@dataclass(frozen=True)
-class FourierDetails:
+@dataclass(frozen=True, repr=False)
+class FourierDetails(BriefRepr):
     """Prices with how they were obtained.
 
     Attributes
@@ -496,7 +497,7 @@ def heston_price_details(
     spot, strike, maturity, rate, div_yield = _validated(
         params, spot, strike, maturity, rate, div_yield, kind, method
     )
-    notice_if_cold()
+    notice_if_cold(cf_array, cos_coefficients, cos_puts, flat_sums)
     drift = rate - div_yield
     shape = strike.shape
     k_flat, t_flat = strike.ravel(), maturity.ravel()

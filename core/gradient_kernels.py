@@ -18,11 +18,9 @@ import math
 import numpy as np
 
 from .cos_kernels import principal_log, principal_sqrt
-from .numba_setup import numba
+from .numba_setup import njit
 
 __all__ = ["log_cf_gradient_array", "put_coefficients", "surface_sums"]
-
-njit = numba.njit
 
 
 @njit(cache=True, inline="always")

@@ -15,6 +15,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .brief_repr import BriefRepr
+from .compiled import notice_if_cold
 from .fourier import heston_price_details
 from .gradient_kernels import log_cf_gradient_array, put_coefficients, surface_sums
 from .heston_cf import log_return_cumulants
@@ -80,16 +82,20 @@ def log_cf_gradient(u, params: HestonParams, maturity, drift=0.0):
     Heston trap. Wilmott Magazine, January 2007, 83-92.
     """
     p = params
-    u, t = np.broadcast_arrays(np.asarray(u, dtype=float), np.asarray(maturity, dtype=float))
+    # Copies: a broadcast view is read-only, and numba warns on being handed one.
+    u, t = (
+        np.array(a) for a in np.broadcast_arrays(np.asarray(u, float), np.asarray(maturity, float))
+    )
     model = np.array([p.v0, p.kappa, p.theta, p.vol_of_vol, p.rho])
+    notice_if_cold(log_cf_gradient_array)
     out = log_cf_gradient_array(
         np.ascontiguousarray(u.ravel()), np.ascontiguousarray(t.ravel()), model, float(drift)
     )
     return out[0].reshape(u.shape), out[1:].reshape((5,) + u.shape)
 
 
-@dataclass(frozen=True)
-class CosGrid:
+@dataclass(frozen=True, repr=False)
+class CosGrid(BriefRepr):
     """COS truncation ranges and term counts, one per maturity.
 
     Attributes
@@ -197,6 +203,7 @@ class SurfacePricer:
             -self.rate * maturity
         )
         blocks = []
+        notice_if_cold(put_coefficients, surface_sums)
         for i, idx in enumerate(self.groups):
             span = slice(int(ends[i]), int(ends[i + 1]))
             coef = put_coefficients(

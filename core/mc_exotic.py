@@ -23,6 +23,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import mc_exotic_kernels as kern
+from .brief_repr import BriefRepr
 from .compiled import notice_if_cold, thread_pool
 from .fourier import heston_price
 from .fourier_check import FourierCheckError
@@ -82,8 +83,8 @@ _SAME_DATE = 1e-12
 _PRODUCTS = (EuropeanOption, BarrierOption, AsianOption, ForwardStartOption, DigitalOption)
 
 
-@dataclass(frozen=True)
-class ExoticMCResult:
+@dataclass(frozen=True, repr=False)
+class ExoticMCResult(BriefRepr):
     """A Monte Carlo price of an exotic with its control variate.
 
     ``price``, ``std_error`` and the interval are the controlled estimate
@@ -537,7 +538,7 @@ def mc_exotic(
         _payoff_spec(product, spot, rate),
         ctrl,
     )
-    notice_if_cold()
+    notice_if_cold(exotic_block)
     coefficient = 0.0
     if resolved != "none":
         pilot_root = np.random.SeedSequence(int(seed), spawn_key=(PILOT_KEY,))

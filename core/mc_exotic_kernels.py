@@ -47,11 +47,10 @@ from .mc_kernels import (
     qe_martingale_shift,
     qe_scalar,
 )
-from .numba_setup import numba
+from .numba_setup import njit
 
 __all__ = ["exotic_block"]
 
-njit = numba.njit
 
 # payoff codes (entry 0 of ``pay`` and of ``ctrl``)
 NONE, VANILLA, ARITHMETIC, GEOMETRIC, FORWARD, DIGITAL, SAME = 0, 1, 2, 3, 4, 5, 6

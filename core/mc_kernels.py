@@ -21,11 +21,10 @@ import math
 
 import numpy as np
 
-from .numba_setup import numba
+from .numba_setup import njit, numba
 
 __all__ = ["block_paths", "price_block", "qe_martingale_shift", "qe_scalar"]
 
-njit = numba.njit
 prange = numba.prange
 
 # scheme kinds (the ``kind`` field of ``mc_schemes.SchemeInfo``)

@@ -26,6 +26,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .brief_repr import BriefRepr
 from .compiled import notice_if_cold, thread_pool
 from .mc_kernels import POS, price_block
 from .mc_schemes import SCHEMES, kernel_constants
@@ -43,8 +44,8 @@ DEFAULT_SEED = 20240601
 Z95 = 1.959963984540054
 
 
-@dataclass(frozen=True)
-class MCResult:
+@dataclass(frozen=True, repr=False)
+class MCResult(BriefRepr):
     """A Monte Carlo price with its statistics.
 
     Arrays have one entry per strike; scalars when one strike was given.
@@ -287,7 +288,7 @@ def mc_price(
         raise InputError(f"paths must be even with antithetic=True, got {paths}")
 
     strikes = np.ascontiguousarray(strikes)  # one compiled signature
-    notice_if_cold()
+    notice_if_cold(price_block)
     started = time.perf_counter()
     p, info = params, SCHEMES[scheme]
     dt = maturity / steps
