@@ -25,6 +25,7 @@ from .cli_text import CAUTION
 from .cli_types import NO_LIMIT, number, numbers, path_steps_cap, positive_int, positive_number
 from .demo_desk import DESK_NAME, demo_models
 from .functions import trading_days
+from .launch import crash_line
 
 #: Exit codes shared by every command (see ``rootvar refresh --help``).
 EXIT_INTERNAL, EXIT_INTERRUPTED = 4, 130
@@ -409,7 +410,7 @@ def main(argv=None) -> int:
         print("rootvar: interrupted", file=sys.stderr)
         return EXIT_INTERRUPTED
     except Exception as exc:  # a crash must never read as "clear" (0) or "breaches" (1)
-        print(f"rootvar: internal error, please report it: {exc!r}", file=sys.stderr)
+        print(f"rootvar: internal error, please report it: {crash_line(exc)}", file=sys.stderr)
         return EXIT_INTERNAL
 
 
