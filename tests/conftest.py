@@ -4,8 +4,9 @@ The server is started from the PostgreSQL binaries on the machine (``initdb``
 and ``pg_ctl`` on the PATH or under /usr/lib/postgresql/*/bin), listens on
 127.0.0.1 only, trusts local connections and is removed after the session.
 PostgreSQL refuses to run as root, so under root it runs as the ``postgres``
-user through ``runuser``.  (pytest-postgresql starts pg_ctl directly and so
-cannot run under root, which is how CI runs.)
+user, the privilege dropped in Python (``subprocess`` with ``user=``).
+(pytest-postgresql starts pg_ctl directly and so cannot run under root, which
+is how CI runs.)
 
 Where the binaries are missing the PostgreSQL tests skip, unless
 ``ROOTVAR_REQUIRE_POSTGRES=1`` (set by ``.ci/run``) turns that into a failure.

@@ -3,8 +3,10 @@
 Started from the machine's PostgreSQL binaries (``initdb`` and ``pg_ctl`` on
 the PATH or under /usr/lib/postgresql/*/bin), trusting local connections, and
 removed afterwards.  PostgreSQL refuses to run as root, so under root it runs
-as the ``postgres`` user through ``runuser``.  (pytest-postgresql starts
-pg_ctl directly and so cannot run under root, which is how CI runs.)
+as the ``postgres`` user, the privilege dropped by Python itself
+(``subprocess`` with ``user=``), so no helper program has to be on the PATH.
+(pytest-postgresql starts pg_ctl directly and so cannot run under root, which
+is how CI runs.)
 """
 
 from __future__ import annotations
@@ -43,15 +45,16 @@ def throwaway_postgres():
     if bin_dir is None:
         raise RuntimeError("PostgreSQL binaries (initdb, pg_ctl) not found")
     root = Path(tempfile.mkdtemp(prefix="rootvar-pg-"))
-    prefix: list[str] = []
+    as_user: dict = {}
     if os.geteuid() == 0:
         user = pwd.getpwnam("postgres")
         os.chown(root, user.pw_uid, user.pw_gid)
-        prefix = ["runuser", "-u", "postgres", "--"]
+        env = {**os.environ, "HOME": user.pw_dir, "USER": "postgres", "LOGNAME": "postgres"}
+        as_user = {"user": user.pw_uid, "group": user.pw_gid, "extra_groups": [], "env": env}
     data, log, port = root / "data", root / "log", _free_port()
 
-    def run(*cmd):
-        subprocess.run([*prefix, *cmd], check=True, capture_output=True, cwd=root, timeout=120)
+    def run(*cmd, check=True):
+        subprocess.run(cmd, check=check, capture_output=True, cwd=root, timeout=120, **as_user)
 
     run(str(bin_dir / "initdb"), "-D", str(data), "-U", "postgres", "-A", "trust", "-N")
     options = f"-p {port} -k {root} -c listen_addresses=127.0.0.1 -F"
@@ -59,9 +62,5 @@ def throwaway_postgres():
     try:
         yield f"postgresql+psycopg://postgres@127.0.0.1:{port}"
     finally:
-        subprocess.run(
-            [*prefix, str(bin_dir / "pg_ctl"), "-D", str(data), "-m", "immediate", "stop"],
-            capture_output=True,
-            timeout=120,
-        )
+        run(str(bin_dir / "pg_ctl"), "-D", str(data), "-m", "immediate", "stop", check=False)
         shutil.rmtree(root, ignore_errors=True)
