@@ -16,6 +16,7 @@ from scipy.special import ndtr
 from scipy.stats import qmc
 
 from .black_scholes import implied_vol_reason
+from .brief_repr import BriefRepr
 from .cir_law import cir_transition
 from .fourier import heston_implied_vol, heston_price_details
 from .heston_gradient import GRID_TOL, PARAM_NAMES, SurfacePricer, grid_from_details
@@ -62,8 +63,8 @@ _BP = 1e4
 _PRICE_FLOOR = 1e-9
 
 
-@dataclass(frozen=True)
-class Calibration:
+@dataclass(frozen=True, repr=False)
+class Calibration(BriefRepr):
     """Result of :func:`calibrate`.
 
     Attributes

@@ -24,6 +24,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.stats import norm
 
+from .brief_repr import BriefRepr
 from .fourier import RANGE_TOL
 from .fourier_exotics import FourierConvergenceError, forward_start_price, geometric_asian_price
 from .mc_exotic import ExoticMCResult, mc_exotic
@@ -94,8 +95,8 @@ BOUND = "bound"
 STANDARD_ERROR = "standard error"
 
 
-@dataclass(frozen=True)
-class SecondPrice:
+@dataclass(frozen=True, repr=False)
+class SecondPrice(BriefRepr):
     """The second method's price, its error and whether it can be used.
 
     Attributes
@@ -130,8 +131,8 @@ class SecondPrice:
     result: object = None
 
 
-@dataclass(frozen=True)
-class ExoticComparison:
+@dataclass(frozen=True, repr=False)
+class ExoticComparison(BriefRepr):
     """Monte Carlo against the second method for one exotic.
 
     Attributes

@@ -15,6 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.interpolate import RectBivariateSpline
 
+from .brief_repr import BriefRepr
 from .fourier import heston_price
 from .heston_cf import log_return_cumulants
 from .params import HestonParams
@@ -64,8 +65,8 @@ NOT_CHECKED = "not checked"
 KNOCKED = "already knocked"
 
 
-@dataclass(frozen=True, eq=False)
-class PDEResult:
+@dataclass(frozen=True, eq=False, repr=False)
+class PDEResult(BriefRepr):
     """A finite-difference price with its error estimate and Greeks.
 
     Attributes

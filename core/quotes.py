@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from .black_scholes import bs_price, implied_vol_reason
+from .brief_repr import BriefRepr
 from .validation import InputError, as_float_array
 
 __all__ = ["QuoteSet", "StaticArbitrageWarning", "read_quotes"]
@@ -39,8 +40,8 @@ class StaticArbitrageWarning(UserWarning):
     """The quotes admit a static arbitrage (calendar or butterfly)."""
 
 
-@dataclass(frozen=True)
-class QuoteSet:
+@dataclass(frozen=True, repr=False)
+class QuoteSet(BriefRepr):
     """Validated quotes, one entry per usable quote, sorted by maturity then strike.
 
     Attributes

@@ -10,6 +10,7 @@ import pandas as pd
 from scipy.stats import norm
 
 from .black_scholes import implied_vol_reason
+from .brief_repr import BriefRepr
 from .fourier import heston_price
 from .mc_schemes import SCHEMES
 from .monte_carlo import DEFAULT_SEED, MCResult, SchemeDivergenceError, mc_price
@@ -111,8 +112,8 @@ def planning_paths(paths, std_error, tolerance, z=DEFAULT_Z, share=PLANNING_SHAR
     return (2 * np.ceil(need / 2)).astype(np.int64)
 
 
-@dataclass(frozen=True)
-class Comparison:
+@dataclass(frozen=True, repr=False)
+class Comparison(BriefRepr):
     """Fourier against Monte Carlo for one strike or a strip (arrays per strike).
 
     Attributes
@@ -317,9 +318,12 @@ def step_study(
         One vanilla (a single strike).
     schemes : sequence of str
         Scheme keys (see :func:`rootvar.core.mc_price`).
-    steps_grid : sequence of int
+    steps_grid : sequence of int, default (1, 2, 4, 8, 16, 32)
         Time steps over the whole maturity.
-    paths, seed, conditional, tolerance_bp, z, antithetic
+    paths : int, default 50000
+        Paths in every cell of the grid (fewer than :func:`compare_mc_fourier`'s
+        default: the grid has many cells).
+    seed, conditional, tolerance_bp, z, antithetic
         As in :func:`compare_mc_fourier`; every cell uses the same seed.
 
     Returns
