@@ -11,9 +11,10 @@ calls, so a workbook computes the same numbers with or without Excel.
 
 Monte Carlo functions are deterministic (``seed`` defaults to
 :data:`rootvar.core.DEFAULT_SEED`), keep their default work near a second
-(``paths`` 20,000, ``steps`` 32; the step study 10,000 paths per cell of its
-grid), refuse more than :data:`MAX_PATH_STEPS` path-steps in one call, and
-serve repeated identical calls from an in-process cache.
+(:data:`MC_PATHS` paths and :data:`MC_STEPS` steps for a price, the step study
+:data:`STUDY_PATHS` paths per cell of its grid), refuse more than
+:data:`MAX_PATH_STEPS` path-steps in one call, and serve repeated identical
+calls from an in-process cache.
 """
 
 from __future__ import annotations
@@ -74,6 +75,8 @@ __all__ = ["MAX_PATH_STEPS", "MAX_SEED", "REGISTRY", "SheetFunction", "work_cap"
 #: belong in an asynchronous function or the headless engine, which has no
 #: cap unless one is asked for (``rootvar compute --max-path-steps``).
 MAX_PATH_STEPS = 50_000_000
+#: Paths and time steps of a Monte Carlo price in a cell when left empty.
+MC_PATHS, MC_STEPS = 20_000, 32
 
 # The cap in force for the calls of this thread/context: the spreadsheet's by
 # default, lifted by the headless engine through work_cap(None).
@@ -373,7 +376,7 @@ def ROOTVAR_EULER_SAFE_STEP(params, tolerance, variance=None):
     horizon="horizon in years, in (0, 100]",
     probability="level in (0, 1)",
 )
-def ROOTVAR_VAR_QUANTILE(params, horizon, probability):
+def ROOTVAR_VARIANCE_QUANTILE(params, horizon, probability):
     """Quantile of the exact law of the variance at a horizon."""
     return float(_law(params, horizon).ppf(to_number("probability", probability, "(0,1)")))
 
@@ -384,7 +387,7 @@ def ROOTVAR_VAR_QUANTILE(params, horizon, probability):
     horizon="horizon in years, in (0, 100]",
     level="variance level, >= 0",
 )
-def ROOTVAR_VAR_CDF(params, horizon, level):
+def ROOTVAR_VARIANCE_CDF(params, horizon, level):
     """Probability that the variance is at or below a level at a horizon (exact law)."""
     return float(_law(params, horizon).cdf(to_number("level", level, ">=0")))
 
@@ -397,7 +400,7 @@ def ROOTVAR_VAR_CDF(params, horizon, level):
     dt="production Euler step in years (empty: 1/252)",
     near_zero="variance level counted as near zero (empty: 1e-4)",
 )
-def ROOTVAR_VAR_TABLE(params, horizons, probabilities=None, dt=None, near_zero=None):
+def ROOTVAR_VARIANCE_TABLE(params, horizons, probabilities=None, dt=None, near_zero=None):
     """Exact-law table of the variance: mean, spread, quantiles, mass near zero, Euler risk.
 
     The Euler columns are the one-step negative probability at v0, the worst
@@ -485,8 +488,8 @@ _MC_DOCS = dict(
     kind="call or put (empty: call)",
     scheme="euler_absorb, euler_reflect, euler_partial, euler_full, qe, qe_martingale or "
     "exact_variance (empty: qe)",
-    steps="time steps over the maturity (empty: 32)",
-    paths="number of paths (empty: 20000)",
+    steps=f"time steps over the maturity (empty: {MC_STEPS})",
+    paths=f"number of paths (empty: {MC_PATHS})",
     seed=f"random seed (empty: {DEFAULT_SEED})",
 )
 
@@ -497,13 +500,13 @@ def _cached_mc(p, s, k, t, r, q, kind, scheme, steps, paths, seed, anti, cond):
 
 
 def _mc_args(
-    params, spot, strike, maturity, rate, div_yield, kind, scheme, steps, paths, seed, n=20_000
+    params, spot, strike, maturity, rate, div_yield, kind, scheme, steps, paths, seed, n=MC_PATHS
 ):
     p = to_params("params", params)
     s, ks, t, r, q, kd = _market(spot, strike, maturity, rate, div_yield, kind)
     k = _single_strike(ks)
     sch = to_choice("scheme", scheme, SCHEME_NAMES, "qe")
-    n_steps = to_int("steps", steps, 32, 1, 100_000)
+    n_steps = to_int("steps", steps, MC_STEPS, 1, 100_000)
     n_paths = to_int("paths", paths, n, 2, 10_000_000)
     sd = to_int("seed", seed, DEFAULT_SEED, 0, MAX_SEED)
     return p, s, k, t, r, q, kd, sch, n_steps, n_paths, sd
@@ -1064,7 +1067,10 @@ _EXOTIC_DOCS = dict(
     div_yield="continuous dividend yield (empty: 0)",
     scheme="euler_absorb, euler_reflect, euler_partial, euler_full, qe, qe_martingale or "
     "exact_variance (empty: qe)",
-    steps="time steps per year; every fixing, monitoring and start date is a step end (empty: 64)",
+    # Literal numbers, so that loading the cells does not load the exotic engine; a test holds
+    # them to the engine's constants.
+    steps="time steps per year; every fixing, monitoring and start date is a step end (empty: "
+    "256 for a continuously watched barrier, else 64)",
     paths="number of paths, even, 1,000 to 10,000,000 (empty: 100000)",
     seed=f"random seed (empty: {DEFAULT_SEED})",
     control="auto, none, european, geometric asian or forward start (empty: auto)",

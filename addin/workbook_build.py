@@ -306,7 +306,9 @@ def build_parameter_check(path: Path) -> None:
     cols = 1 + 2 + len(DEFAULT_QUANTILES) + 1 + 4 + 1
     law["C13"] = "exact-law table (the Euler columns state the step)"
     law["C13"].font = _BOLD
-    _array(law, "C14", 1 + len(horizons), cols, f"=ROOTVAR_VAR_TABLE({block},{h_range},,B10,B11)")
+    _array(
+        law, "C14", 1 + len(horizons), cols, f"=ROOTVAR_VARIANCE_TABLE({block},{h_range},,B10,B11)"
+    )
     first, last = 15, 14 + len(horizons)
     kinds = ["years", "variance", "variance"] + ["variance_log"] * len(DEFAULT_QUANTILES)
     kinds += ["probability", "probability", "probability", "variance_log", "probability"]
@@ -326,7 +328,7 @@ def build_parameter_check(path: Path) -> None:
         law.cell(row=14, column=3 + j).value = None  # the array formula fills the header
     law["C14"] = ArrayFormula(
         f"C14:{get_column_letter(2 + cols)}{last}",
-        f"=ROOTVAR_VAR_TABLE({block},{h_range},,B10,B11)",
+        f"=ROOTVAR_VARIANCE_TABLE({block},{h_range},,B10,B11)",
     )
     law.column_dimensions[get_column_letter(2 + cols)].width = 24
     near_zero_col = 3 + 3 + len(DEFAULT_QUANTILES)  # C + horizon, mean, std, quantiles

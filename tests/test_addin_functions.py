@@ -1,5 +1,6 @@
 """Spreadsheet functions called as xlwings would call them."""
 
+import inspect
 import math
 
 import numpy as np
@@ -45,8 +46,10 @@ def test_values_equal_the_core():
     assert euler_max_step(0.04, 5.0, 0.09, 0.3, 1e-3) == math.inf
     assert call("ROOTVAR_EULER_SAFE_STEP", [[0.04, 5.0, 0.09, 0.3, 0.0]], 1e-3) == "unbounded"
     law = cir_transition(0.04, 0.5, 0.04, 1.0, 2.0)
-    assert call("ROOTVAR_VAR_QUANTILE", BLOCK, 2.0, 0.9) == pytest.approx(law.ppf(0.9), rel=1e-12)
-    assert call("ROOTVAR_VAR_CDF", BLOCK, 2.0, 0.01) == pytest.approx(law.cdf(0.01), rel=1e-12)
+    assert call("ROOTVAR_VARIANCE_QUANTILE", BLOCK, 2.0, 0.9) == pytest.approx(
+        law.ppf(0.9), rel=1e-12
+    )
+    assert call("ROOTVAR_VARIANCE_CDF", BLOCK, 2.0, 0.01) == pytest.approx(law.cdf(0.01), rel=1e-12)
     strikes = [[60.0], [100.0], [140.0]]
     column = call("ROOTVAR_FOURIER_PRICE", BLOCK, 100.0, strikes, 10.0)
     np.testing.assert_allclose(np.ravel(column), heston_price(P, 100, [60, 100, 140], 10.0))
@@ -61,7 +64,7 @@ def test_values_equal_the_core():
 
 
 def test_variance_table_spills_a_header_and_one_row_per_horizon():
-    rows = call("ROOTVAR_VAR_TABLE", BLOCK, [[0.5], [1.0], [2.0]], [[0.01], [0.5]])
+    rows = call("ROOTVAR_VARIANCE_TABLE", BLOCK, [[0.5], [1.0], [2.0]], [[0.01], [0.5]])
     assert rows[0][0] == "horizon (years)" and len(rows) == 4
     assert all(len(r) == len(rows[0]) for r in rows)
     assert rows[3][0] == 2.0
@@ -101,7 +104,7 @@ def test_step_study_spills_table_and_recommendation():
         ("ROOTVAR_FELLER", (None,), "params must be a range"),
         ("ROOTVAR_EULER_NEG_PROB", (BLOCK, "daily"), "dt must be a number, got the text 'daily'"),
         ("ROOTVAR_EULER_SAFE_STEP", (BLOCK, 1.5), "tolerance must lie in (0, 1), got 1.5"),
-        ("ROOTVAR_VAR_QUANTILE", (BLOCK, 1.0, 0.0), "probability must lie in (0, 1)"),
+        ("ROOTVAR_VARIANCE_QUANTILE", (BLOCK, 1.0, 0.0), "probability must lie in (0, 1)"),
         ("ROOTVAR_FOURIER_PRICE", (BLOCK, 100.0, -5.0, 1.0), "strike must be > 0, got -5.0"),
         ("ROOTVAR_IMPLIED_VOL", (1.0, 100.0, 80.0, 1.0), "no-arbitrage bounds"),
         (
@@ -273,8 +276,8 @@ def test_missing_arguments_are_named():
         ("ROOTVAR_STEP_STUDY", (BLOCK, 100.0, 100.0, 1e12), "maturity must lie in [0.001, 100]"),
         ("ROOTVAR_FOURIER_PRICE", (BLOCK, 0.5, 5e-324, 1.0), "strike / spot must lie in"),
         # a horizon of 1e-12 would need a Poisson series of ~1e11 terms: refused up front
-        ("ROOTVAR_VAR_QUANTILE", (BLOCK, 1e-12, 0.01), "horizon is too short"),
-        ("ROOTVAR_VAR_TABLE", (BLOCK, [[1.0], [1e-12]]), "horizons is too short"),
+        ("ROOTVAR_VARIANCE_QUANTILE", (BLOCK, 1e-12, 0.01), "horizon is too short"),
+        ("ROOTVAR_VARIANCE_TABLE", (BLOCK, [[1.0], [1e-12]]), "horizons is too short"),
         ("ROOTVAR_FELLER", ([0.04, 1e15, 0.04, 1.0, -0.9],), "kappa must lie in"),
         ("ROOTVAR_FELLER", ([[0.04, 0.5], [0.04], [1.0, -0.9]],), "rectangular range"),
         ("ROOTVAR_MC_PRICE", (BLOCK, 100.0, 100.0, 1.0, 0, 0, [["call"], ["put"]]), "kind must"),
@@ -464,3 +467,41 @@ def test_exotic_messages_name_the_product_in_words():
         *_exotic_args("asian", strike=100.0, maturity=1.0, dates=[[0.5], [2.0]]),
     )
     assert "maturity must be the last fixing date 2 of an Asian, got 1" in text
+
+
+def test_documented_defaults_are_the_ones_the_code_uses():
+    # The function reference, module docstrings and README state defaults that the
+    # code must actually use (common practice, no source: documentation from the code).
+    import ast
+    import re
+    from pathlib import Path
+
+    from rootvar.addin import functions
+    from rootvar.core.exotic_check import DEFAULT_EXOTIC_PATHS
+    from rootvar.core.mc_exotic import BARRIER_STEPS_PER_YEAR, DEFAULT_STEPS_PER_YEAR
+
+    exotic = dict(REGISTRY["ROOTVAR_EXOTIC_PRICE"].args)
+    assert f"(empty: {DEFAULT_EXOTIC_PATHS})" in exotic["paths"]
+    assert f"{BARRIER_STEPS_PER_YEAR} for a continuously watched barrier" in exotic["steps"]
+    assert f"else {DEFAULT_STEPS_PER_YEAR})" in exotic["steps"]
+    study = dict(REGISTRY["ROOTVAR_STEP_STUDY"].args)["paths"]
+    assert f"(empty: {functions.STUDY_PATHS})" in study
+    root = Path(__file__).resolve().parents[1]
+    texts = [(root / "README.md").read_text(encoding="utf-8"), functions.__doc__]
+    texts += [p.read_text(encoding="utf-8") for p in (root / "docs").rglob("*.rst")]
+    claims = [c for t in texts for c in re.findall(r"step study ([\d,]+) paths per", t)]
+    assert claims and {int(c.replace(",", "")) for c in claims} == {functions.STUDY_PATHS}
+    # numpydoc "name : type, default X" lines of the public core functions match the signature
+    import rootvar.core as core
+
+    checked = 0
+    for name in core.__all__:
+        obj = getattr(core, name)
+        if not callable(obj) or isinstance(obj, type) or not obj.__doc__:
+            continue
+        signature = inspect.signature(obj)
+        for arg, text in re.findall(r"^\s+(\w+) : [^\n]*?, default ([^\n]+)$", obj.__doc__, re.M):
+            if arg in signature.parameters:
+                assert ast.literal_eval(text.strip()) == signature.parameters[arg].default, arg
+                checked += 1
+    assert checked >= 2

@@ -89,7 +89,7 @@ def test_blocked_spill_is_reported_in_the_cell(tmp_path):
 
 def test_array_formula_fills_its_range(tmp_path):
     def fill(ws, wb):
-        ws["A1"] = ArrayFormula("A1:B3", "=ROOTVAR_VAR_TABLE(D1:H1,J1:J2,L1)")
+        ws["A1"] = ArrayFormula("A1:B3", "=ROOTVAR_VARIANCE_TABLE(D1:H1,J1:J2,L1)")
         ws["D1"], ws["E1"], ws["F1"], ws["G1"], ws["H1"] = 0.04, 0.5, 0.04, 1.0, -0.9
         ws["J1"], ws["J2"], ws["L1"] = 1.0, 2.0, 0.5
 
