@@ -263,8 +263,9 @@ def test_charts_have_explicit_axes_log_scale_and_markers():
 def test_breach_shading_marks_the_cell_and_its_threshold():
     ws = _template(PARAMETER_CHECK)["Desk models"]
     rules = {str(rng.sqref): [r.formula[0] for r in rng.rules] for rng in ws.conditional_formatting}
-    assert rules["I8:I12"] == ["I8>$B$5"]
-    assert rules["B5"] == ["MAX(I8:I12)>B5"]
+    last = 7 + len(demo_models())  # one row per demo model from row 8
+    assert rules[f"I8:I{last}"] == ["I8>$B$5"]
+    assert rules["B5"] == [f"MAX(I8:I{last})>B5"]
     assert "Shaded rose" in ws["A6"].value  # the rule is stated on the sheet
 
 
