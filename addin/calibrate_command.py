@@ -15,6 +15,7 @@ import pandas as pd
 from rootvar.core import InputError, StaticArbitrageWarning, calibration_tradeoff
 
 from .cli_text import CAUTION
+from .files import os_cause
 
 __all__ = ["add_calibrate_parser", "run_calibrate"]
 
@@ -79,6 +80,10 @@ def _read_csv(path: str) -> pd.DataFrame:
         return pd.read_csv(path, skipinitialspace=True)
     except FileNotFoundError:
         raise InputError(f"quotes file must exist, got {path!r}") from None
+    except IsADirectoryError:
+        raise InputError(f"quotes file must be a file, got the folder {path!r}") from None
+    except OSError as exc:  # no right to read it, or the disk failed: an input problem, not a crash
+        raise InputError(f"quotes file must be readable, got {path!r}: {os_cause(exc)}") from None
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
         raise InputError(
             f"quotes file must be a CSV with a header row, got {path!r}: {exc}"

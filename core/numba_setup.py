@@ -85,8 +85,9 @@ def _writable(folder: Path) -> bool:
 def _private_temp_folder() -> Path | None:
     """``<temp>/rootvar-numba-<uid>``, if it is ours alone and writable; else None."""
     uid = os.getuid() if hasattr(os, "getuid") else os.environ.get("USERNAME", "user")
-    folder = Path(tempfile.gettempdir()) / f"rootvar-numba-{uid}"
     try:
+        # gettempdir raises when no candidate folder can be written (TMPDIR, /tmp, ...)
+        folder = Path(tempfile.gettempdir()) / f"rootvar-numba-{uid}"
         folder.mkdir(mode=0o700, exist_ok=True)
         info = folder.lstat()
     except OSError:
