@@ -37,9 +37,9 @@ from openpyxl.formula.tokenizer import Token
 from openpyxl.utils.cell import get_column_letter, range_boundaries
 from openpyxl.worksheet.formula import ArrayFormula
 
-from .cells import MARK, error_text
-from .files import SaveError, file_problem, save_atomic
-from .functions import REGISTRY, work_cap
+from rootvar.addin.cells import MARK, error_text
+from rootvar.addin.files import SaveError, file_problem, save_atomic
+from rootvar.addin.functions import REGISTRY, work_cap
 
 __all__ = [
     "ComputeReport",

@@ -30,6 +30,19 @@ from dataclasses import dataclass
 import numpy as np
 import xlwings as xw
 
+from rootvar.addin.cells import (
+    CellError,
+    error_text,
+    to_bool,
+    to_choice,
+    to_int,
+    to_number,
+    to_numbers,
+    to_params,
+    to_table,
+    to_text_list,
+    within,
+)
 from rootvar.core import (
     DEFAULT_PATHS,
     DEFAULT_SEED,
@@ -53,20 +66,6 @@ from rootvar.core import (
     mc_price,
     step_study,
     variance_report,
-)
-
-from .cells import (
-    CellError,
-    error_text,
-    to_bool,
-    to_choice,
-    to_int,
-    to_number,
-    to_numbers,
-    to_params,
-    to_table,
-    to_text_list,
-    within,
 )
 
 __all__ = ["MAX_PATH_STEPS", "MAX_SEED", "REGISTRY", "SheetFunction", "work_cap"]
@@ -828,7 +827,7 @@ def ROOTVAR_PDE_PRICE(
 ):
     """European or barrier option price under Heston by finite differences, with its error."""
     from rootvar.core import InputError
-    from rootvar.core.pde import DEFAULT_GRID
+    from rootvar.core.pde.solver import DEFAULT_GRID
 
     p = to_params("params", params)
     s = to_number("spot", spot, ">0")
@@ -914,7 +913,7 @@ def _feller_cell(name: str, value, default: str):
 
 
 def _cal_args(quotes, spot, rate, div_yield, feller, starts, sobol_seed, default_feller):
-    from rootvar.core.calibration import DEFAULT_CALIBRATION_SEED
+    from rootvar.core.calibration.fit import DEFAULT_CALIBRATION_SEED
 
     table = to_table("quotes", quotes)
     key = tuple((col, tuple(vals)) for col, vals in table.items())
@@ -1041,7 +1040,7 @@ def ROOTVAR_FELLER_TRADEOFF(
 #: Product words a cell takes (spaces or hyphens for underscores): "asian" is the
 #: arithmetic average, "geometric asian" the geometric one.
 EXOTIC_PRODUCTS = ("european", "barrier", "asian", "geometric_asian", "forward_start", "digital")
-#: Control variates a cell takes (see rootvar.core.mc_exotic).
+#: Control variates a cell takes (see rootvar.core.montecarlo.exotic).
 EXOTIC_CONTROLS = ("auto", "none", "european", "geometric_asian", "forward_start")
 #: Fixings per year of an Asian whose dates are left empty (monthly).
 ASIAN_FIXINGS_PER_YEAR = 12
@@ -1151,7 +1150,7 @@ def _exotic_product(spot, product, kind, strike, maturity, barrier, direction, k
 
 
 def _exotic_run_args(scheme, steps, paths, seed, control):
-    from rootvar.core.exotic_check import DEFAULT_EXOTIC_PATHS, DEFAULT_EXOTIC_SCHEME
+    from rootvar.core.checks.exotic import DEFAULT_EXOTIC_PATHS, DEFAULT_EXOTIC_SCHEME
 
     sch = to_choice("scheme", scheme, SCHEME_NAMES, DEFAULT_EXOTIC_SCHEME)
     n_steps = None if _empty(steps) else to_int("steps", steps, 1, 1, 100_000)

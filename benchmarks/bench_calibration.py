@@ -22,15 +22,15 @@ from rootvar.core import (
     heston_implied_vol,
     heston_price,
 )
-from rootvar.core.calibration import (
+from rootvar.core.calibration.fit import (
     TIGHT_TOL,
     _Coordinates,
     _otm_price,
     _reasonable_start,
     _vega,
 )
-from rootvar.core.fourier_check import lewis_call_price
-from rootvar.core.quotes import read_quotes
+from rootvar.core.calibration.quotes import read_quotes
+from rootvar.core.fourier.check import lewis_call_price
 
 from .timing import median_seconds, show
 

@@ -13,19 +13,20 @@ import subprocess
 import sys
 import textwrap
 import time
-from pathlib import Path
 
 import numpy as np
 
-import rootvar.core.fourier as fourier
+import rootvar.core.fourier.cos as fourier
 from rootvar.core import BLOCK, HestonParams, heston_price, heston_price_details, mc_price
-from rootvar.core.numba_setup import numba
+from rootvar.core.runtime import numba
+from tests.oracles.fourier_reference import (
+    reference_cf_values,
+    reference_cos_puts,
+    reference_fourier_sums,
+)
+from tests.oracles.mc_reference import reference_price
 
 from .timing import median_seconds, show
-
-sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
-from fourier_reference import reference_cf_values, reference_cos_puts, reference_fourier_sums
-from mc_reference import reference_price
 
 FO = HestonParams(0.0175, 1.5768, 0.0398, 0.5751, -0.5711)
 CASE_I = HestonParams(0.04, 0.5, 0.04, 1.0, -0.9)

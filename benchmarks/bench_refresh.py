@@ -18,7 +18,7 @@ from openpyxl import load_workbook
 
 from rootvar.addin.control import refresh
 from rootvar.addin.control.store import HistoryStore
-from rootvar.addin.workbook_build import build_control
+from rootvar.addin.workbooks.build import build_control
 
 TARGET_MODELS, TARGET_SECONDS = 1000, 600.0
 
@@ -124,8 +124,7 @@ def run() -> None:
         sqlite = _store_write(f"sqlite:///{folder / 'bench.sqlite'}", rows)
         print(f"  store write, one date of 10,000 rows, SQLite:     {sqlite:6.2f} s (median of 3)")
         try:
-            sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
-            from pg_server import throwaway_postgres
+            from tests.support.pg_server import throwaway_postgres
 
             with throwaway_postgres() as server:
                 pg = _store_write(f"{server}/postgres", rows)

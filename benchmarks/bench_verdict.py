@@ -22,7 +22,7 @@ import sys
 
 import numpy as np
 
-from rootvar.addin.demo_desk import demo_models
+from rootvar.addin.workbooks.demo_desk import demo_models
 from rootvar.core import (
     BIASED,
     CONSISTENT,

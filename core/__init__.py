@@ -6,8 +6,9 @@ xlwings or openpyxl.
 Names are loaded on first use (PEP 562): ``from rootvar.core import
 heston_price`` imports the Fourier pricer and what it needs, not the
 calibration, the PDE solver or pandas.  A spreadsheet cell's first call
-then does not pay for the whole library (README, "Compiled kernels and
-cold start").
+then does not pay for the whole library.  The modules live in subpackages
+named after the method (``variance``, ``fourier``, ``montecarlo``, ``pde``,
+``calibration``, ``checks``); no public name is also a module's name.
 """
 
 from __future__ import annotations
@@ -18,17 +19,23 @@ from importlib.metadata import PackageNotFoundError, version
 #: Public names by the module that defines them.
 _MODULES = {
     "black_scholes": ("bs_price", "implied_vol", "implied_vol_reason"),
-    "calibration": ("Calibration", "calibrate", "calibration_tradeoff"),
-    "cir_law": ("TINY_VARIANCE", "cir_stationary", "cir_transition", "cir_transition_shapes"),
-    "compiled": ("CompileNotice", "compile_kernels", "kernels_cached"),
-    "exotic_check": ("ExoticComparison", "compare_exotic"),
-    "fourier": ("FourierDetails", "heston_implied_vol", "heston_price", "heston_price_details"),
-    "fourier_check": ("FourierCheckError", "lewis_call_price"),
-    "fourier_exotics": ("FourierConvergenceError", "forward_start_price", "geometric_asian_price"),
-    "heston_gradient": ("heston_price_gradient",),
-    "mc_exotic": ("ExoticMCResult", "mc_exotic"),
-    "mc_schemes": ("SCHEMES",),
-    "monte_carlo": (
+    "calibration.fit": ("Calibration", "calibrate", "calibration_tradeoff"),
+    "variance.cir_law": (
+        "TINY_VARIANCE",
+        "cir_stationary",
+        "cir_transition",
+        "cir_transition_shapes",
+    ),
+    "runtime": ("CompileNotice",),
+    "warmup": ("compile_kernels", "kernels_cached"),
+    "checks.exotic": ("ExoticComparison", "compare_exotic"),
+    "fourier.cos": ("FourierDetails", "heston_implied_vol", "heston_price", "heston_price_details"),
+    "fourier.check": ("FourierCheckError", "lewis_call_price"),
+    "fourier.exotics": ("FourierConvergenceError", "forward_start_price", "geometric_asian_price"),
+    "fourier.gradient": ("heston_price_gradient",),
+    "montecarlo.exotic": ("ExoticMCResult", "mc_exotic"),
+    "montecarlo.schemes": ("SCHEMES",),
+    "montecarlo.european": (
         "BLOCK",
         "DEFAULT_SEED",
         "MCResult",
@@ -36,7 +43,7 @@ _MODULES = {
         "mc_price",
     ),
     "params": ("HestonParams",),
-    "pde": ("PDEResult", "pde_price"),
+    "pde.solver": ("PDEResult", "pde_price"),
     "products": (
         "AsianOption",
         "BarrierOption",
@@ -44,10 +51,10 @@ _MODULES = {
         "EuropeanOption",
         "ForwardStartOption",
     ),
-    "quotes": ("QuoteSet", "StaticArbitrageWarning", "read_quotes"),
-    "report": ("DEFAULT_QUANTILES", "variance_report"),
+    "calibration.quotes": ("QuoteSet", "StaticArbitrageWarning", "read_quotes"),
+    "variance.report": ("DEFAULT_QUANTILES", "variance_report"),
     "validation": ("InputError",),
-    "variance": (
+    "variance.euler": (
         "EulerWorstCase",
         "euler_max_step",
         "euler_negative_probability",
@@ -55,7 +62,7 @@ _MODULES = {
         "feller_ratio",
         "regime_label",
     ),
-    "verdict": (
+    "checks.vanilla": (
         "BIASED",
         "CONSISTENT",
         "DEFAULT_PATHS",
@@ -78,10 +85,6 @@ except PackageNotFoundError:  # running from a source tree that is not installed
     __version__ = "0+unknown"
 
 __all__ = sorted([*_WHERE, "__version__"])
-
-# A name that is also its module's name must be bound now: loading the module
-# later would set the package attribute to the module, hiding the function.
-from .mc_exotic import mc_exotic as mc_exotic  # noqa: E402
 
 
 def __getattr__(name: str):

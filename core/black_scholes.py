@@ -12,7 +12,13 @@ from __future__ import annotations
 import numpy as np
 from scipy.special import erfcx, ndtr
 
-from .validation import InputError, as_float_array, broadcast, check_choice, scalar_or_array
+from rootvar.core.validation import (
+    InputError,
+    as_float_array,
+    broadcast,
+    check_choice,
+    scalar_or_array,
+)
 
 __all__ = ["bs_price", "implied_vol", "implied_vol_reason"]
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from .validation import InputError, as_float_array
+from rootvar.core.validation import InputError, as_float_array
 
 __all__ = ["HestonParams"]
 

@@ -1,7 +1,7 @@
 """Option contracts as small frozen, validated values.
 
 A product is plain data: what is paid, on what, and when.  Pricers (the
-finite-difference solver of :mod:`rootvar.core.pde`, and later Monte Carlo
+finite-difference solver of :mod:`rootvar.core.pde.solver`, and later Monte Carlo
 exotics) read these fields; they hold no pricing code.  New contracts are
 added as further frozen dataclasses beside these, each validating itself on
 construction.
@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .validation import InputError, as_float, as_float_array, check_choice
+from rootvar.core.validation import InputError, as_float, as_float_array, check_choice
 
 __all__ = [
     "AVERAGES",

@@ -18,7 +18,7 @@ import os
 import uuid
 
 import pytest
-from pg_server import pg_bin, throwaway_postgres
+from support.pg_server import pg_bin, throwaway_postgres
 
 
 @pytest.fixture(scope="session")

@@ -34,11 +34,12 @@ def test_public_names_are_the_functions_not_their_modules_and_load_on_first_use(
         heston_price(p, 100.0, 100.0, 1.0)
         mc_price(p, 100.0, 100.0, 1.0, paths=2_000)
         # a first price and run pay for their engines only (README, cold start)
-        heavy = ("pandas", "scipy.stats", "rootvar.core.calibration")
+        heavy = ("pandas", "scipy.stats", "rootvar.core.calibration.fit")
         heavy = [m for m in heavy if m in sys.modules]
         assert heavy == [], heavy
         import rootvar.core as core
-        import rootvar.core.mc_exotic, rootvar.core.exotic_check  # modules loaded in any order
+        # modules loaded in any order
+        import rootvar.core.montecarlo.exotic, rootvar.core.checks.exotic
         for name in core.__all__:
             assert not inspect.ismodule(getattr(core, name)), name
         assert "calibrate" in dir(core)

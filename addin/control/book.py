@@ -22,10 +22,9 @@ from pathlib import Path
 from openpyxl import load_workbook
 from openpyxl.utils import get_column_letter
 
+from rootvar.addin.files import file_problem, os_cause
 from rootvar.core import HestonParams, InputError
-from rootvar.core.control import ControlSettings, ModelSpec
-
-from ..files import file_problem, os_cause
+from rootvar.core.checks.daily import ControlSettings, ModelSpec
 
 __all__ = [
     "HISTORY_SHEET",

@@ -13,7 +13,7 @@ import sys
 import time
 from concurrent.futures import ProcessPoolExecutor, as_completed
 
-from rootvar.core.control import ControlSettings, ModelSpec, check_model
+from rootvar.core.checks.daily import ControlSettings, ModelSpec, check_model
 
 from .book import ControlError
 
@@ -77,7 +77,7 @@ def _worker_start(threads: int) -> None:
     """Set up a pool worker: its share of the cores, Ctrl-C is the parent's, it dies with it."""
     # The kernels run Monte Carlo blocks on as many threads as numba allows; N worker
     # processes with all cores' threads each would fight over the cores.
-    from rootvar.core.compiled import numba
+    from rootvar.core.runtime import numba
 
     numba.set_num_threads(max(1, min(threads, numba.config.NUMBA_NUM_THREADS)))
     # Ctrl-C reaches the whole process group; only the parent decides what stops

@@ -22,9 +22,9 @@ import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from rootvar.addin.files import SaveError, file_problem, save_atomic
 from rootvar.core import __version__
 
-from ..files import SaveError, file_problem, save_atomic
 from .book import (
     HISTORY_SHEET,
     MODELS_SHEET,

@@ -22,7 +22,7 @@ from openpyxl.styles import Alignment, Font, PatternFill
 from openpyxl.utils import get_column_letter
 
 from rootvar.core import __version__
-from rootvar.core.control import CHECK_FAILED, ControlSettings, row_seed
+from rootvar.core.checks.daily import CHECK_FAILED, ControlSettings, row_seed
 
 from .book import HISTORY_SHEET, RESULTS_SHEET
 

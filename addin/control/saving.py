@@ -36,7 +36,8 @@ from pathlib import Path
 
 from filelock import FileLock, Timeout
 
-from ..files import current_umask
+from rootvar.addin.files import current_umask
+
 from .book import ControlError
 
 __all__ = ["BookLock", "LockBusy"]

@@ -1,0 +1,2 @@
+"""The ``rootvar`` command line.  Kept empty: the console command enters through ``launch``,
+which must import nothing heavy before its guard."""

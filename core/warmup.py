@@ -1,0 +1,76 @@
+"""The compiled kernels as a whole: the list of them, and compiling them ahead of time.
+
+numba compiles each kernel on its first call and keeps the machine code on
+disk (``cache=True``; where, see :mod:`rootvar.core.runtime`), so only the
+very first use on a machine pays the compile, about half a minute to a
+minute.  ``rootvar compile`` (run by ``make demo`` and the installation
+steps) pays it ahead of time.  Imported by the command line and the lazy
+public map only: it imports every engine.
+"""
+
+from __future__ import annotations
+
+import time
+
+from rootvar.core import runtime
+from rootvar.core.fourier import cos_kernels, gradient_kernels
+from rootvar.core.montecarlo import exotic_kernels as mc_exotic_kernels
+from rootvar.core.montecarlo import kernels as mc_kernels
+
+__all__ = ["KERNELS", "compile_kernels", "kernels_cached"]
+
+#: Every kernel called from Python, with the signatures the library uses.
+KERNELS = (
+    mc_kernels.block_paths,
+    mc_kernels.price_block,
+    cos_kernels.cf_array,
+    cos_kernels.log_cf_array,
+    mc_exotic_kernels.exotic_block,
+    gradient_kernels.log_cf_gradient_array,
+    gradient_kernels.put_coefficients,
+    gradient_kernels.surface_sums,
+    cos_kernels.cos_coefficients,
+    cos_kernels.flat_sums,
+    cos_kernels.cos_puts,
+)
+
+
+def kernels_cached() -> bool:
+    """True when every kernel is compiled in this process or has machine code on disk."""
+    return runtime.kernels_cached(KERNELS)
+
+
+def compile_kernels() -> float:
+    """Compile (or load from the disk cache) every kernel; returns the seconds taken.
+
+    Small calls of the public functions, so that exactly the signatures the
+    library uses are compiled: every Monte Carlo scheme kind with both
+    payoffs, one Fourier price, and one price gradient (the calibration).
+    """
+    from rootvar.core.fourier.cos import heston_price
+    from rootvar.core.fourier.gradient import heston_price_gradient, log_cf_gradient
+    from rootvar.core.montecarlo.european import mc_price
+    from rootvar.core.params import HestonParams
+
+    runtime.quiet_notice()  # the caller says what is happening
+    start = time.perf_counter()
+    p = HestonParams(0.04, 1.5, 0.04, 0.5, -0.7)
+    for scheme in ("euler_full", "qe", "qe_martingale", "exact_variance"):
+        for conditional in (False, True):
+            mc_price(
+                p, 100.0, 100.0, 1.0, scheme=scheme, steps=2, paths=64, conditional=conditional
+            )
+    heston_price(p, 100.0, [90.0, 110.0], 1.0)
+    _compile_exotics(p)
+    heston_price_gradient(p, 100.0, [90.0, 110.0], 1.0)  # the calibration's kernels
+    log_cf_gradient([1.0], p, 1.0)
+    return time.perf_counter() - start
+
+
+def _compile_exotics(p) -> None:
+    """The exotic path kernel for every scheme kind (one signature: the product is data)."""
+    from rootvar.core.montecarlo.exotic import mc_exotic
+    from rootvar.core.products import EuropeanOption
+
+    for scheme in ("euler_full", "qe", "qe_martingale", "exact_variance"):
+        mc_exotic(p, 100.0, EuropeanOption("call", 100.0, 1.0), scheme=scheme, steps=2, paths=128)
