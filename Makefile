@@ -28,10 +28,10 @@ bench: $(STAMP)
 	$(BIN)/python -m benchmarks
 
 docs: $(STAMP)
-	$(BIN)/python -m rootvar.addin.reference README.md
+	$(BIN)/sphinx-build -W --keep-going -b html docs docs/_build/html
 
 workbooks: $(STAMP)
 	$(BIN)/rootvar build-workbooks --dir workbooks
 
 clean:
-	rm -rf $(VENV) .pytest_cache .ruff_cache .hypothesis out
+	rm -rf $(VENV) .pytest_cache .ruff_cache .hypothesis out docs/_build
