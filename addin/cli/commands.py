@@ -11,7 +11,7 @@ from pathlib import Path
 import pandas as pd
 
 from rootvar.addin.cells import PARAM_ORDER, parameter_name
-from rootvar.addin.cli.launch import crash_line
+from rootvar.addin.cli.launch import crash_line, quiet_pipe
 from rootvar.addin.cli.text import CAUTION
 from rootvar.addin.cli.types import (
     NO_LIMIT,
@@ -412,10 +412,7 @@ def main(argv=None) -> int:
         print(f"rootvar: {exc}", file=sys.stderr)
         return 2
     except BrokenPipeError:
-        # `rootvar report ... | head`: the reader has what it wanted; end quietly.  Point
-        # stdout at devnull so the interpreter's final flush does not complain again.
-        devnull = os.open(os.devnull, os.O_WRONLY)
-        os.dup2(devnull, sys.stdout.fileno())
+        quiet_pipe()  # `rootvar report ... | head`: the reader has what it wanted
         return EXIT_PIPE
     except KeyboardInterrupt:
         print("rootvar: interrupted", file=sys.stderr)

@@ -14,7 +14,7 @@ import os
 import sys
 import warnings
 
-__all__ = ["crash_line", "main"]
+__all__ = ["crash_line", "main", "quiet_pipe"]
 
 #: The exit codes this step gives itself (the commands' own: :mod:`rootvar.addin.cli.commands`).
 EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_PIPE = 4, 130, 141
@@ -39,7 +39,8 @@ def crash_line(exc: BaseException) -> str:
     return f"{type(exc).__name__}: {text}"
 
 
-def _quiet_pipe() -> None:
+def quiet_pipe() -> None:
+    """End quietly after the reader of stdout went away (a closed pipe)."""
     # The reader of `rootvar ... | head` has what it wanted; point stdout at devnull so
     # the interpreter's final flush does not complain again.
     try:
@@ -62,7 +63,7 @@ def main(argv=None) -> int:
         print("rootvar: interrupted", file=sys.stderr)
         return EXIT_INTERRUPTED
     except BrokenPipeError:
-        _quiet_pipe()
+        quiet_pipe()
         return EXIT_PIPE
     except BaseException as exc:
         try:
