@@ -24,10 +24,10 @@ from rootvar.core import (
 )
 from rootvar.core.calibration.fit import (
     TIGHT_TOL,
-    _Coordinates,
-    _otm_price,
-    _reasonable_start,
-    _vega,
+    Coordinates,
+    bs_otm_price,
+    bs_vega,
+    reasonable_start,
 )
 from rootvar.core.calibration.quotes import read_quotes
 from rootvar.core.fourier.check import lewis_call_price
@@ -63,10 +63,10 @@ def _baseline(quotes, start: HestonParams):
     difference steps), RMSE (bp, its own residuals), parameters and status.
     """
     q = read_quotes(quotes, SPOT, RATE, DIV)
-    market = _otm_price(SPOT, q.strike, q.maturity, q.implied_vol, RATE, DIV)
-    scale = 1.0 / _vega(SPOT, q.strike, q.maturity, q.implied_vol, RATE, DIV)
+    market = bs_otm_price(SPOT, q.strike, q.maturity, q.implied_vol, RATE, DIV)
+    scale = 1.0 / bs_vega(SPOT, q.strike, q.maturity, q.implied_vol, RATE, DIV)
     forward = SPOT * np.exp((RATE - DIV) * q.maturity)
-    coords = _Coordinates()
+    coords = Coordinates()
     # rho bounded at +-1 as when the baseline was first measured: its difference
     # Jacobian of certified prices (each priced on its own grid, noisy at 1e-10 x
     # spot) makes its path fragile; with calibrate's +-0.999 it wanders to some
@@ -113,7 +113,7 @@ def run() -> None:
     with warnings.catch_warnings():
         warnings.simplefilter("error")  # the benchmark surface is free of static arbitrage
         q = read_quotes(quotes, SPOT, RATE, DIV)
-    start = _reasonable_start(q, SPOT, RATE, DIV)
+    start = reasonable_start(q, SPOT, RATE, DIV)
     print(f"  {len(quotes)} quotes, {len(MATURITIES)} maturities; spot {SPOT:g}")
     print("  (shared 2-core machine: figures drift by up to 1.5x between runs)")
     print(f"  load average at the start: {_load()}")

@@ -16,7 +16,7 @@ import time
 
 import numpy as np
 
-import rootvar.core.fourier.cos as fourier
+import rootvar.core.fourier.series as series
 from rootvar.core import BLOCK, HestonParams, heston_price, heston_price_details, mc_price
 from rootvar.core.runtime import numba
 from tests.oracles.fourier_reference import (
@@ -122,7 +122,7 @@ def _numpy_payoff_sums(angle, series):
 
 
 def _numpy_puts(series, log_moneyness, strike):
-    """``_CosSeries.puts`` as it was in numpy."""
+    """``CosSeries.puts`` as it was in numpy."""
     a, b, coef0, pay, edge = series.a, series.b, series.coef[0], series.payoff_coef, series.chi_edge
     return reference_cos_puts(a, b, coef0, pay, edge, log_moneyness, strike)
 
@@ -133,16 +133,16 @@ class _NumpyFourier:
     pricer (range checks, series coefficients) is the same code in both."""
 
     def __enter__(self):
-        self.saved = fourier._cf_values, fourier._payoff_sums, fourier._SERIES
-        self.puts = fourier._CosSeries.puts
-        fourier._cf_values = reference_cf_values
-        fourier._payoff_sums = _numpy_payoff_sums
-        fourier._CosSeries.puts = _numpy_puts
-        fourier._SERIES = fourier._SeriesCache(0)
+        self.saved = series.cf_values, series.payoff_sums, series.SERIES
+        self.puts = series.CosSeries.puts
+        series.cf_values = reference_cf_values
+        series.payoff_sums = _numpy_payoff_sums
+        series.CosSeries.puts = _numpy_puts
+        series.SERIES = series.SeriesCache(0)
 
     def __exit__(self, *exc):
-        fourier._cf_values, fourier._payoff_sums, fourier._SERIES = self.saved
-        fourier._CosSeries.puts = self.puts
+        series.cf_values, series.payoff_sums, series.SERIES = self.saved
+        series.CosSeries.puts = self.puts
 
 
 def _load() -> str:
@@ -176,8 +176,8 @@ def _cold(func):
     """``func`` with the series cache and the memo of maturities emptied first: a first call."""
 
     def run():
-        fourier._SERIES.clear()
-        fourier._law_facts_kept.cache_clear()
+        series.SERIES.clear()
+        series.law_facts_kept.cache_clear()
         func()
 
     return run
@@ -194,7 +194,7 @@ def _fourier() -> None:
         base, fast = _paired(one, repeats=15)
         show(f"{name}: numpy", base)
         show(f"{name}: compiled (target {target})", fast, base)
-    fourier._SERIES.clear()
+    series.SERIES.clear()
     heston_price(CASE_I, 100.0, 100.0, 1.0)
     strikes = iter(np.linspace(60.0, 160.0, 400))
     further = median_seconds(lambda: heston_price(CASE_I, 100.0, next(strikes), 1.0), repeats=51)

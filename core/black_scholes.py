@@ -230,3 +230,27 @@ def implied_vol(price, spot, strike, maturity, rate=0.0, div_yield=0.0, kind="ca
     if vol.ndim == 0 and reason.item():
         raise InputError(f"price {reason.item()}, got {float(np.asarray(price))!r}")
     return scalar_or_array(vol)
+
+
+def bs_vega(spot, strike, maturity, vol, rate, div_yield):
+    """Black-Scholes vega ``S e^{-qT} phi(d1) sqrt(T)`` (currency per unit vol)."""
+    total = vol * np.sqrt(maturity)
+    d1 = (np.log(spot / strike) + (rate - div_yield) * maturity) / total + 0.5 * total
+    return (
+        spot
+        * np.exp(-div_yield * maturity)
+        * np.exp(-0.5 * d1 * d1)
+        * np.sqrt(maturity / (2.0 * np.pi))
+    )
+
+
+def bs_otm_price(spot, strike, maturity, vol, rate, div_yield):
+    """Black-Scholes out-of-the-money price: put below the forward, call at or above."""
+    total = vol * np.sqrt(maturity)
+    fwd = spot * np.exp((rate - div_yield) * maturity)
+    d1 = np.log(fwd / strike) / total + 0.5 * total
+    d2 = d1 - total
+    df = np.exp(-rate * maturity)
+    call = df * (fwd * ndtr(d1) - strike * ndtr(d2))
+    put = df * (strike * ndtr(-d2) - fwd * ndtr(-d1))
+    return np.where(strike >= fwd, call, put)

@@ -71,7 +71,7 @@ def _normalise_url(url: str) -> str:
     return url
 
 
-def _tables(meta: sa.MetaData, version: int = SCHEMA_VERSION):
+def define_tables(meta: sa.MetaData, version: int = SCHEMA_VERSION):
     """The tables as they stand at schema ``version``."""
     sa.Table(
         "rootvar_meta",
@@ -101,13 +101,14 @@ def _tables(meta: sa.MetaData, version: int = SCHEMA_VERSION):
     sa.Index("control_rows_by_model", rows.c.book, rows.c.model_id)
 
 
-def _migrate_0_to_1(conn) -> None:
+def migrate_0_to_1(conn) -> None:
+    """Version 1: the runs and rows tables as first released."""
     meta = sa.MetaData()
-    _tables(meta, version=1)
+    define_tables(meta, version=1)
     meta.create_all(conn)
 
 
-def _migrate_1_to_2(conn) -> None:
+def migrate_1_to_2(conn) -> None:
     """Version 2 adds the worst case of one Euler step and how often it is visited."""
     for f in FIELDS:
         if f.since == 2:
@@ -119,7 +120,7 @@ def _migrate_1_to_2(conn) -> None:
 
 #: version reached -> step that takes the schema there from the one before.  Never edit
 #: a step once released: add the next one.
-_MIGRATIONS = {1: _migrate_0_to_1, 2: _migrate_1_to_2}
+_MIGRATIONS = {1: migrate_0_to_1, 2: migrate_1_to_2}
 
 
 class HistoryStore:
@@ -154,7 +155,7 @@ class HistoryStore:
                 "(PostgreSQL needs: pip install 'rootvar[postgres]')"
             ) from exc
         self.meta = sa.MetaData()
-        _tables(self.meta)
+        define_tables(self.meta)
         self.runs = self.meta.tables["control_runs"]
         self.rows = self.meta.tables["control_rows"]
         self.info = self.meta.tables["rootvar_meta"]
@@ -199,12 +200,12 @@ class HistoryStore:
                     )
                 for version in range(current + 1, SCHEMA_VERSION + 1):
                     _MIGRATIONS[version](conn)
-                    self._set_version(conn, version)
+                    self.set_version(conn, version)
                 return SCHEMA_VERSION
         except SQLAlchemyError as exc:
             raise self._fail("create or migrate its schema", exc) from exc
 
-    def _set_version(self, conn, version: int) -> None:
+    def set_version(self, conn, version: int) -> None:
         conn.execute(sa.delete(self.info).where(self.info.c.key == "schema_version"))
         conn.execute(sa.insert(self.info).values(key="schema_version", value=str(version)))
 

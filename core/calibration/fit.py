@@ -12,10 +12,9 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 from scipy.optimize import least_squares
-from scipy.special import ndtr
 from scipy.stats import qmc
 
-from rootvar.core.black_scholes import implied_vol_reason
+from rootvar.core.black_scholes import bs_otm_price, bs_vega, implied_vol_reason
 from rootvar.core.brief_repr import BriefRepr
 from rootvar.core.calibration.quotes import QuoteSet, read_quotes
 from rootvar.core.fourier.cos import heston_implied_vol, heston_price_details
@@ -133,7 +132,7 @@ class Calibration(BriefRepr):
 # ------------------------------------------------------------ parameterisations
 
 
-class _Coordinates:
+class Coordinates:
     """``x = (ln v0, ln kappa, ln theta, ln R, rho)`` with ``R`` the Feller ratio.
 
     ``vol_of_vol = sqrt(2 kappa theta / R)``.  The Feller constraint becomes a
@@ -215,30 +214,6 @@ def _feller_mode(feller):
 # ------------------------------------------------------------ the problem
 
 
-def _vega(spot, strike, maturity, vol, rate, div_yield):
-    """Black-Scholes vega ``S e^{-qT} phi(d1) sqrt(T)`` (currency per unit vol)."""
-    total = vol * np.sqrt(maturity)
-    d1 = (np.log(spot / strike) + (rate - div_yield) * maturity) / total + 0.5 * total
-    return (
-        spot
-        * np.exp(-div_yield * maturity)
-        * np.exp(-0.5 * d1 * d1)
-        * np.sqrt(maturity / (2.0 * np.pi))
-    )
-
-
-def _otm_price(spot, strike, maturity, vol, rate, div_yield):
-    """Black-Scholes out-of-the-money price: put below the forward, call at or above."""
-    total = vol * np.sqrt(maturity)
-    fwd = spot * np.exp((rate - div_yield) * maturity)
-    d1 = np.log(fwd / strike) / total + 0.5 * total
-    d2 = d1 - total
-    df = np.exp(-rate * maturity)
-    call = df * (fwd * ndtr(d1) - strike * ndtr(d2))
-    put = df * (strike * ndtr(-d2) - fwd * ndtr(-d1))
-    return np.where(strike >= fwd, call, put)
-
-
 @dataclass
 class _Run:
     params: HestonParams
@@ -258,9 +233,9 @@ class _Problem:
         self.q = quotes
         self.spot, self.rate, self.div_yield = spot, rate, div_yield
         k, t, v = quotes.strike, quotes.maturity, quotes.implied_vol
-        self.market = _otm_price(spot, k, t, v, rate, div_yield)
+        self.market = bs_otm_price(spot, k, t, v, rate, div_yield)
         self.scale = np.sqrt(quotes.weight) / np.maximum(
-            _vega(spot, k, t, v, rate, div_yield), 1e-12 * spot * np.sqrt(t)
+            bs_vega(spot, k, t, v, rate, div_yield), 1e-12 * spot * np.sqrt(t)
         )
         self.evaluations = 0
         self._lock = threading.Lock()
@@ -370,7 +345,7 @@ class _Problem:
 # ------------------------------------------------------------ starts
 
 
-def _reasonable_start(q: QuoteSet, spot, rate, div_yield) -> HestonParams:
+def reasonable_start(q: QuoteSet, spot, rate, div_yield) -> HestonParams:
     """ATM variance of the first and last maturity, moderate reversion and vol of vol.
 
     ``rho`` takes the sign of the short-dated skew (falling vols in strike:
@@ -523,9 +498,9 @@ def calibrate(
     if isinstance(quotes, QuoteSet) and weights is not None:
         raise InputError("weights must be left out when quotes is a QuoteSet, got both")
     problem = _Problem(q, spot, rate, div_yield)
-    first = start or _reasonable_start(q, spot, rate, div_yield)
+    first = start or reasonable_start(q, spot, rate, div_yield)
     points = [first, *_sobol_starts(first, n_starts, seed)]
-    transform = _Coordinates(min_ratio)
+    transform = Coordinates(min_ratio)
     # every start is fitted on grids certified at its own optimum, so the fits
     # compare on certified prices: a start stopped on its own start's grid (once
     # the screening here) reads tens of bp off and hides that it would have reached

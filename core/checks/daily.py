@@ -120,7 +120,7 @@ def recommendation_grid(settings: ControlSettings, maturity: float):
     return schemes, grid
 
 
-def _recommend(spec, settings, seed, maturity, strike) -> str:
+def recommended_run(spec, settings, seed, maturity, strike) -> str:
     """Cheapest consistent scheme and step for one failing option.
 
     The answer is the step study's ``cheapest`` cell (lowest steps x
@@ -267,7 +267,7 @@ def check_model(spec: ModelSpec, settings: ControlSettings) -> list[dict]:
         worst = int(np.argmax(np.where(verdicts == BIASED, np.abs(diff_bp), -1.0)))
         recommendation = ""
         if (verdicts == BIASED).any():
-            recommendation = _recommend(spec, settings, seed, t, float(strikes[worst]))
+            recommendation = recommended_run(spec, settings, seed, t, float(strikes[worst]))
         for i, k in enumerate(strikes):
             flags = list(model_flags)
             if verdicts[i] == BIASED:

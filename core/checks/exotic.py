@@ -34,12 +34,12 @@ from rootvar.core.checks.vanilla import (
     UNDECIDED,
     planning_paths,
 )
-from rootvar.core.fourier.cos import RANGE_TOL
 from rootvar.core.fourier.exotics import (
     FourierConvergenceError,
     forward_start_price,
     geometric_asian_price,
 )
+from rootvar.core.fourier.series import RANGE_TOL
 from rootvar.core.montecarlo.european import DEFAULT_SEED
 from rootvar.core.montecarlo.exotic import ExoticMCResult, mc_exotic
 from rootvar.core.montecarlo.schemes import SCHEMES
@@ -305,7 +305,7 @@ def second_price(
     raise InputError(f"product has no second method here, got {type(product).__name__}")
 
 
-def _verdict(d, se_mc, se_2, bound, tol, z):
+def band_verdict(d, se_mc, se_2, bound, tol, z):
     """The three states from the band ``d +- (z sqrt(se_mc^2 + se_2^2) + bound)``."""
     stat = math.sqrt(se_mc**2 + se_2**2)
     half = z * stat + bound
@@ -317,7 +317,7 @@ def _verdict(d, se_mc, se_2, bound, tol, z):
     return UNDECIDED, stat, half
 
 
-def _settle(paths, se_mc, se_2, bound, tol, z):
+def deciding_paths(paths, se_mc, se_2, bound, tol, z):
     """Paths at which a rerun of the Monte Carlo decides, or -1 when the second method must move.
 
     The second method's error does not shrink with the check's paths: a rerun
@@ -590,7 +590,7 @@ def _compare(mc, second, tol, z, scale, source) -> ExoticComparison:
         verdict, stat, half, settle = UNDECIDED, math.nan, math.nan, -1
         reason = f"no verdict: {second.detail}"
     else:
-        verdict, stat, half = _verdict(d, se_mc, se_2, bound, tol, z)
+        verdict, stat, half = band_verdict(d, se_mc, se_2, bound, tol, z)
         err = (
             f" + {bound:.3g} ({name} error bound)"
             if bound > 0
@@ -604,7 +604,7 @@ def _compare(mc, second, tol, z, scale, source) -> ExoticComparison:
         elif verdict == BIASED:
             reason = f"{band} lies wholly outside {where}"
         else:
-            settle = _settle(mc.paths, se_mc, se_2, bound, tol, z)
+            settle = deciding_paths(mc.paths, se_mc, se_2, bound, tol, z)
             if settle < 0:
                 reason = (
                     f"{band} straddles {where}; the {name}'s own error leaves no room for "

@@ -1,7 +1,7 @@
 """Compiled kernels of the Fourier pricer: the characteristic function and the COS sums.
 
 The formulas are those of :func:`rootvar.core.fourier.characteristic.heston_log_cf` and
-``rootvar.core.fourier.cos._fourier_sums`` (see their docstrings), evaluated one
+``rootvar.core.fourier.series.fourier_sums`` (see their docstrings), evaluated one
 number at a time instead of on whole-array temporaries: no intermediate
 arrays; the kernels release the GIL.
 """
@@ -207,7 +207,7 @@ def cos_coefficients(cf, step, a, b):
     (0 at ``omega = 0``) and ``coef (1 - i omega) / (1 + omega^2)`` laid out
     for :func:`flat_sums` (real parts, imaginary parts), and the real sum of
     the second column.  The phases ``e^{-i omega_k a}`` are
-    products of a far and a near wave, as in ``rootvar.core.fourier.cos._phases``.
+    products of a far and a near wave, as in ``rootvar.core.fourier.series.phases``.
     """
     n = -(-cf.size // step)
     width = np.pi / (b - a)

@@ -33,8 +33,8 @@ import warnings
 import numpy as np
 from scipy import integrate
 
-from rootvar.core.fourier.cos import MAX_TERMS, RANGE_TOL, SERIES_TOL, _CosSeries
 from rootvar.core.fourier.joint_cf import joint_log_mgf
+from rootvar.core.fourier.series import MAX_TERMS, RANGE_TOL, SERIES_TOL, CosSeries
 from rootvar.core.params import HestonParams
 from rootvar.core.products import AsianOption, ForwardStartOption
 from rootvar.core.validation import InputError, as_float
@@ -98,10 +98,10 @@ def _cutoff(log_cf, bound_scale, tol):
     return float(u[above[-1] + 1]) if above.size else float(u[0])
 
 
-def _cos_put(log_cf, log_moneyness, strike, spot, what):
+def cos_put(log_cf, log_moneyness, strike, spot, what):
     """``E[K (1 - e^{x + R})^+]`` by a certified COS series.
 
-    Same rules as ``rootvar.core.fourier.cos._cos_puts_certified`` for one strike:
+    Same rules as ``rootvar.core.fourier.cos.certified_puts`` for one strike:
     the range ``[c1 - left sd, c1 + right sd]`` is accepted when the price on
     it and on its double (both extents doubled) differ by at most
     ``RANGE_TOL x spot`` and, if the kink ``-x`` lies outside the range, the
@@ -120,7 +120,7 @@ def _cos_put(log_cf, log_moneyness, strike, spot, what):
     kink = -log_moneyness
 
     def series(a, b, n):
-        return _CosSeries.from_cf(a, b, _in_chunks(log_cf, np.arange(n) * (np.pi / (b - a))))
+        return CosSeries.from_cf(a, b, _in_chunks(log_cf, np.arange(n) * (np.pi / (b - a))))
 
     def terms(left, right):
         return int(np.ceil(u_cut * (left + right) * sd / np.pi)) + 2
@@ -132,8 +132,8 @@ def _cos_put(log_cf, log_moneyness, strike, spot, what):
             break
         wide_a, wide_b = c1 - 2.0 * left * sd, c1 + 2.0 * right * sd
         cf = _in_chunks(log_cf, np.arange(2 * n) * (np.pi / (wide_b - wide_a)))
-        wide = _CosSeries.from_cf(wide_a, wide_b, cf)
-        base = _CosSeries.from_cf(c1 - left * sd, c1 + right * sd, cf, step=2)
+        wide = CosSeries.from_cf(wide_a, wide_b, cf)
+        base = CosSeries.from_cf(c1 - left * sd, c1 + right * sd, cf, step=2)
         below, up_to = wide.cdf(np.array([base.a, base.b]))
         err_left = strike * abs(below) if kink < base.a else 0.0
         err_right = 2.0 * strike * abs(1.0 - up_to) if kink > base.b else 0.0
@@ -216,7 +216,7 @@ def _quad_put(log_cf, log_moneyness, strike, mean, what):
 def _certified_put(log_cf, log_moneyness, strike, mean, spot, what):
     """The certified COS put, or the adaptive-quadrature one when COS cannot certify."""
     try:
-        return _cos_put(log_cf, log_moneyness, strike, spot, what)
+        return cos_put(log_cf, log_moneyness, strike, spot, what)
     except FourierConvergenceError as cos_error:
         try:
             return _quad_put(log_cf, log_moneyness, strike, mean, what)
@@ -312,7 +312,7 @@ def geometric_asian_price(params, spot, product, rate=0.0, div_yield=0.0):
     return _from_put(product.kind, put, mean, strike, np.exp(-rate * product.maturity))
 
 
-def _forward_start_log_cf(params, t0, big_t, drift):
+def forward_start_log_cf(params, t0, big_t, drift):
     """``u -> log E~[e^{iuR}]``, ``R = ln(S_T / S_t0)`` under the ``S_t0`` measure."""
     dates = np.array([t0, big_t]) if t0 > 0 else np.array([big_t])
 
@@ -392,7 +392,7 @@ def forward_start_price(params, spot, product, rate=0.0, div_yield=0.0):
         raise InputError(f"product must be a ForwardStartOption, got {type(product).__name__}")
     drift = rate - div_yield
     t0, big_t, share = product.start, product.maturity, product.strike_share
-    log_cf = _forward_start_log_cf(params, t0, big_t, drift)
+    log_cf = forward_start_log_cf(params, t0, big_t, drift)
     # unit spot at t0: the series prices E~[k (1 - e^{R - ln k})^+]
     mean = np.exp(drift * (big_t - t0))  # E~[e^R]
     put = _certified_put(log_cf, -np.log(share), share, mean, 1.0, "forward-start")

@@ -121,7 +121,7 @@ def check_stable(scheme: str, kappa: float, dt: float) -> None:
         )
 
 
-def _child(root, j):
+def block_seed(root, j):
     """``root.spawn(n)[j]`` for any ``n > j``, without making the other children."""
     return np.random.SeedSequence(
         root.entropy, spawn_key=(*root.spawn_key, j), pool_size=root.pool_size
@@ -309,7 +309,7 @@ def mc_price(
     counts = np.zeros((n_blocks, 4), dtype=np.int64)  # values, touched, negatives, failed
 
     def run_block(j):
-        gen = np.random.Generator(np.random.SFC64(_child(root, j)))
+        gen = np.random.Generator(np.random.SFC64(block_seed(root, j)))
         return price_block(
             gen,
             sizes[j],

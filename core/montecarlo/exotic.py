@@ -35,7 +35,7 @@ from rootvar.core.montecarlo.european import (
     BLOCK,
     DEFAULT_SEED,
     Z95,
-    _child,
+    block_seed,
     check_stable,
     coarse_step_notes,
     diverged_error,
@@ -311,7 +311,7 @@ def _run(root, paths, chunk_paths, antithetic, args):
     per_chunk = max(1, chunk_paths // BLOCK)
 
     def run_block(j):
-        gen = np.random.Generator(np.random.SFC64(_child(root, j)))
+        gen = np.random.Generator(np.random.SFC64(block_seed(root, j)))
         return exotic_block(gen, sizes[j], antithetic, *args)
 
     sums = np.zeros((n_blocks, 5))

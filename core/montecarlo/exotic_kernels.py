@@ -41,9 +41,9 @@ from rootvar.core.montecarlo.kernels import (
     EULER,
     EXACT,
     QE_MARTINGALE,
-    _f,
-    _normals,
-    _uniforms,
+    fill_normals,
+    fill_uniforms,
+    fixed_variance,
     qe_martingale_shift,
     qe_scalar,
 )
@@ -190,21 +190,25 @@ def exotic_block(
         d_end = disc[k + 1]
         # the variance draws of the scheme, then the log-price normal: every step, every path
         if kind == EULER:
-            _normals(gen, z, size, anti)
+            fill_normals(gen, z, size, anti)
         elif kind != EXACT:
-            _normals(gen, z, size, anti)
-            _uniforms(gen, u, size, anti)
+            fill_normals(gen, z, size, anti)
+            fill_uniforms(gen, u, size, anti)
         else:
             for i in range(size):
                 u[i] = gen.noncentral_chisquare(c[6], v[i] * c[7])
-        _normals(gen, zx, size, anti)
+        fill_normals(gen, zx, size, anti)
         for i in range(size):
             old = v[i]
             adj = 0.0
             if kind == EULER:
-                out = _f(fmap[2], old)
+                out = fixed_variance(fmap[2], old)
                 root_z = math.sqrt(out) * z[i]
-                new = _f(fmap[0], old) + c[4] * (theta - _f(fmap[1], old)) + c[6] * root_z
+                new = (
+                    fixed_variance(fmap[0], old)
+                    + c[4] * (theta - fixed_variance(fmap[1], old))
+                    + c[6] * root_z
+                )
                 negatives += new < 0.0
                 d_int = out * dt
                 d_mart = c[5] * root_z

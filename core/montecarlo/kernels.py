@@ -37,7 +37,8 @@ _SQRTH = 0.7071067811865476  # 1 / sqrt(2)
 
 
 @njit(cache=True, inline="always")
-def _f(code, x):
+def fixed_variance(code, x):
+    """The variance a scheme's step reads: ``max(x, 0)``, ``|x|`` or ``x`` itself, by ``code``."""
     if code == POS:
         return max(x, 0.0)
     if code == ABS:
@@ -46,7 +47,7 @@ def _f(code, x):
 
 
 @njit(cache=True)
-def _normals(gen, out, size, anti):
+def fill_normals(gen, out, size, anti):
     """One block's normals; with ``anti`` the second half mirrors the first."""
     half = (size + 1) // 2 if anti else size
     for i in range(half):
@@ -56,7 +57,7 @@ def _normals(gen, out, size, anti):
 
 
 @njit(cache=True)
-def _uniforms(gen, out, size, anti):
+def fill_uniforms(gen, out, size, anti):
     """One block's uniforms in [0, 1); the mirror ``k 2^-53 -> (2^53 - 1 - k) 2^-53`` is exact."""
     half = (size + 1) // 2 if anti else size
     for i in range(half):
@@ -213,12 +214,12 @@ def block_paths(gen, size, anti, kind, fmap, c, v0, steps):
         if kind == EULER:
             kdt, sq_dt, sq = c[4], c[5], c[6]
             f1, f2, f3 = fmap[0], fmap[1], fmap[2]
-            _normals(gen, z, size, anti)
+            fill_normals(gen, z, size, anti)
             for i in range(size):
                 x = v[i]
-                out = _f(f3, x)
+                out = fixed_variance(f3, x)
                 root_z = math.sqrt(out) * z[i]
-                new = _f(f1, x) + kdt * (theta - _f(f2, x)) + sq * root_z
+                new = fixed_variance(f1, x) + kdt * (theta - fixed_variance(f2, x)) + sq * root_z
                 negatives += new < 0.0
                 hit[i] |= new <= 0.0
                 int_var[i] += out * dt
@@ -233,8 +234,8 @@ def block_paths(gen, size, anti, kind, fmap, c, v0, steps):
                 int_var[i] += new
                 v[i] = new
         elif kind == QE:
-            _normals(gen, z, size, anti)
-            _uniforms(gen, u, size, anti)
+            fill_normals(gen, z, size, anti)
+            fill_uniforms(gen, u, size, anti)
             _qe_step(v, z, u, c, mean, ratio, index, new_v)
             for i in range(size):
                 new = new_v[i]
@@ -242,8 +243,8 @@ def block_paths(gen, size, anti, kind, fmap, c, v0, steps):
                 int_var[i] += new
                 v[i] = new
         else:
-            _normals(gen, z, size, anti)
-            _uniforms(gen, u, size, anti)
+            fill_normals(gen, z, size, anti)
+            fill_uniforms(gen, u, size, anti)
             for i in range(size):
                 x = v[i]
                 new, hot, q, m, one_b2 = qe_scalar(x, u[i], z[i], c)
@@ -297,7 +298,7 @@ def price_block(gen, size, anti, kind, fmap, c, v0, steps, market, rho, strikes,
     )
     z = np.zeros(size)
     if not conditional:
-        _normals(gen, z, size, anti)
+        fill_normals(gen, z, size, anti)
     values = np.empty((size, n_k))
     for i in range(size):
         if not (math.isfinite(int_var[i]) and math.isfinite(mart[i])):

@@ -290,7 +290,7 @@ def _solve_level(problem, params, spot, rate, div_yield, sizes, scheme, damping,
     return out, values, sum(n for _, n in pieces)
 
 
-def _refinement(prices, spot):
+def refinement_estimate(prices, spot):
     """Price, error estimate, order and whether Richardson was applied."""
     p0, p1, p2 = prices
     d1, d2 = p0 - p1, p1 - p2
@@ -532,7 +532,7 @@ def pde_price(
     (price, delta, gamma, vega), solution, steps = results[0]
     prices = tuple(r[0][0] for r in results)
     if refine:
-        price, error, order, extrapolated = _refinement(prices, spot)
+        price, error, order, extrapolated = refinement_estimate(prices, spot)
         status = CONVERGED if error <= tol else NOT_CONVERGED
         difference = prices[0] - prices[1]
     else:

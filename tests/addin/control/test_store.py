@@ -11,7 +11,7 @@ from openpyxl import Workbook, load_workbook
 from support.control_books import _rows, make_book
 
 import rootvar.addin.control as control
-from rootvar.addin.cli.commands import main
+from rootvar.addin.cli.main import main
 from rootvar.addin.control.store import SCHEMA_VERSION, HistoryStore, StoreError
 
 
@@ -255,10 +255,10 @@ def test_a_version_1_store_is_migrated_and_keeps_its_rows(store_url):
 
     old = HistoryStore(store_url)
     with old.engine.begin() as conn:
-        store_module._migrate_0_to_1(conn)
-        old._set_version(conn, 1)
+        store_module.migrate_0_to_1(conn)
+        old.set_version(conn, 1)
         meta = sa.MetaData()
-        store_module._tables(meta, version=1)
+        store_module.define_tables(meta, version=1)
         conn.execute(
             sa.insert(meta.tables["control_rows"]),
             [{"book": "b", "position": 0, "as_of": "2026-11-30", "model_id": "OLD", "seed": 7}],

@@ -12,7 +12,7 @@ from support.control_books import _col, _digest, _rows, _visible, _without_run_t
 
 import rootvar.addin.control as control
 from rootvar.addin import files
-from rootvar.addin.cli.commands import main
+from rootvar.addin.cli.main import main
 from rootvar.core import HestonParams, InputError
 from rootvar.core.checks.daily import ControlSettings, ModelSpec, check_model, row_seed
 
@@ -315,7 +315,7 @@ def test_bad_as_of_date(tmp_path, capsys):
 def test_recommendation_is_the_step_studys_cheapest_consistent_cell():
     """The early-stopping search returns the full study's answer (identity test)."""
     from rootvar.core import step_study
-    from rootvar.core.checks.daily import _recommend, recommendation_grid
+    from rootvar.core.checks.daily import recommendation_grid, recommended_run
 
     settings = ControlSettings(paths=8192, steps_per_year=16, tolerance_bp=10.0)
     params = HestonParams(0.04, 0.5, 0.04, 1.0, -0.9)  # Feller ratio 0.04: Euler is biased
@@ -328,7 +328,7 @@ def test_recommendation_is_the_step_studys_cheapest_consistent_cell():
         antithetic=False,
     )  # fmt: skip
     best = table.attrs["cheapest"]
-    text = _recommend(spec, settings, seed, 1.0, 100.0)
+    text = recommended_run(spec, settings, seed, 1.0, 100.0)
     if best is None:
         assert text.startswith("none consistent")
     else:

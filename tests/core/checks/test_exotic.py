@@ -25,8 +25,8 @@ from rootvar.core.checks import exotic as exotic_check
 from rootvar.core.checks.exotic import (
     DEFAULT_DIGITAL_TOLERANCE_SHARE,
     DEFAULT_TOLERANCE_SHARE,
-    _settle,
-    _verdict,
+    band_verdict,
+    deciding_paths,
 )
 
 #: Fang & Oosterlee (2008), SIAM J. Sci. Comput. 31(2), Heston test case.
@@ -129,24 +129,28 @@ def test_an_uncertified_fourier_price_gives_no_verdict(monkeypatch):
 
 def test_the_three_states_follow_the_band():
     # the rule of compare_mc_fourier (README, "Verdict"), with a bound added to the band
-    assert _verdict(0.01, 0.01, 0.0, 0.02, 0.1, 3.0)[0] == CONSISTENT  # 0.01 + 0.05 <= 0.1
-    assert _verdict(0.06, 0.01, 0.0, 0.02, 0.1, 3.0)[0] == UNDECIDED  # 0.06 + 0.05 straddles
-    assert _verdict(-0.2, 0.01, 0.0, 0.02, 0.1, 3.0)[0] == BIASED  # -0.2 + 0.05 < -0.1
+    assert band_verdict(0.01, 0.01, 0.0, 0.02, 0.1, 3.0)[0] == CONSISTENT  # 0.01 + 0.05 <= 0.1
+    assert band_verdict(0.06, 0.01, 0.0, 0.02, 0.1, 3.0)[0] == UNDECIDED  # 0.06 + 0.05 straddles
+    assert band_verdict(-0.2, 0.01, 0.0, 0.02, 0.1, 3.0)[0] == BIASED  # -0.2 + 0.05 < -0.1
     # standard errors add in quadrature: sqrt(0.03^2 + 0.04^2) = 0.05
-    state, stat, half = _verdict(0.0, 0.03, 0.04, 0.0, 0.1, 3.0)
+    state, stat, half = band_verdict(0.0, 0.03, 0.04, 0.0, 0.1, 3.0)
     assert stat == pytest.approx(0.05) and half == pytest.approx(0.15)
     assert state == UNDECIDED
 
 
 def test_paths_to_settle_account_for_the_second_methods_error():
     # with an exact second method the figure is planning_paths' own
-    assert _settle(10_000, 0.02, 0.0, 0.0, 0.1, 3.0) == int(planning_paths(10_000, 0.02, 0.1, 3.0))
+    assert deciding_paths(10_000, 0.02, 0.0, 0.0, 0.1, 3.0) == int(
+        planning_paths(10_000, 0.02, 0.1, 3.0)
+    )
     # a bound eats into the room: more paths needed than without it
-    assert _settle(10_000, 0.02, 0.0, 0.05, 0.1, 3.0) > _settle(10_000, 0.02, 0.0, 0.0, 0.1, 3.0)
+    assert deciding_paths(10_000, 0.02, 0.0, 0.05, 0.1, 3.0) > deciding_paths(
+        10_000, 0.02, 0.0, 0.0, 0.1, 3.0
+    )
     # an error the size of the tolerance leaves no room at any count
-    assert _settle(10_000, 0.02, 0.0, 0.1, 0.1, 3.0) == -1
-    assert _settle(10_000, 0.02, 0.0, 0.3, 0.1, 3.0) == -1  # a bound past the tolerance
-    assert _settle(10_000, 0.02, 0.03, 0.0, 0.1, 3.0) == -1  # (3 + 1.645) x 0.03 > 0.1
+    assert deciding_paths(10_000, 0.02, 0.0, 0.1, 0.1, 3.0) == -1
+    assert deciding_paths(10_000, 0.02, 0.0, 0.3, 0.1, 3.0) == -1  # a bound past the tolerance
+    assert deciding_paths(10_000, 0.02, 0.03, 0.0, 0.1, 3.0) == -1  # (3 + 1.645) x 0.03 > 0.1
 
 
 def test_a_rerun_at_the_planned_paths_has_a_band_inside_the_tolerance():

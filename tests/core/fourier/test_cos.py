@@ -7,8 +7,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-import rootvar.core.fourier.cos as fourier
 import rootvar.core.fourier.cos_kernels as cos_kernels
+import rootvar.core.fourier.series as series
 from rootvar.core import (
     FourierCheckError,
     HestonParams,
@@ -274,9 +274,9 @@ def test_blocked_fourier_sums_match_the_direct_sum():
     coef = rng.normal(size=(20000, 2)) / np.arange(1, 20001)[:, None] + 0j
     angle = np.concatenate([[0.0, np.pi], rng.uniform(0, np.pi, 5)])
     direct = np.exp(1j * np.outer(angle, np.arange(20000))) @ coef
-    assert np.max(np.abs(fourier._fourier_sums(angle, coef) - direct)) < 1e-13
+    assert np.max(np.abs(series.fourier_sums(angle, coef) - direct)) < 1e-13
     # both sides round the argument 0.37 k (up to 7400) differently: ~1e-12
-    phases = fourier._phases(-0.37, 20000)
+    phases = series.phases(-0.37, 20000)
     assert np.max(np.abs(phases - np.exp(-0.37j * np.arange(20000)))) < 4e-12
 
 
@@ -289,8 +289,8 @@ def test_series_truncation_bound_holds_when_loosened(monkeypatch, series_tol):
     for p, t in [(ANDERSEN_I, 0.25), (FO, 1 / 365), (FO, 5.0)]:
         tight = heston_price_details(p, 100, k, t)
         with monkeypatch.context() as patch:
-            patch.setattr(fourier, "SERIES_TOL", series_tol)
-            patch.setattr(fourier, "RANGE_TOL", series_tol)
+            patch.setattr(series, "SERIES_TOL", series_tol)
+            patch.setattr(series, "RANGE_TOL", series_tol)
             loose = heston_price_details(p, 100, k, t)
         assert loose.terms[t] < tight.terms[t]  # the bound is what sets N
         err = np.max(np.abs(loose.price - lewis_call_price(p, 100, k, t)))
@@ -298,7 +298,7 @@ def test_series_truncation_bound_holds_when_loosened(monkeypatch, series_tol):
 
 
 def test_uncertifiable_cos_falls_back_to_the_check_method(monkeypatch):
-    monkeypatch.setattr(fourier, "MAX_TERMS", 8)
+    monkeypatch.setattr(series, "MAX_TERMS", 8)
     details = heston_price_details(FO, 100, [90.0, 110.0], 1.0)
     assert details.fallbacks == 2
     np.testing.assert_allclose(details.price, lewis_call_price(FO, 100, [90.0, 110.0], 1.0))

@@ -9,7 +9,7 @@ from oracles.fourier_reference import (
     reference_fourier_sums,
 )
 
-import rootvar.core.fourier.cos as fourier
+import rootvar.core.fourier.series as series
 from rootvar.core import HestonParams, heston_price, heston_price_details
 from rootvar.core.fourier.characteristic import heston_log_cf
 from rootvar.core.fourier.cos_kernels import cos_coefficients, cos_puts
@@ -45,7 +45,7 @@ def test_compiled_characteristic_function_matches_the_plain_form(p):
 @pytest.mark.parametrize("t", [1 / 365, 1.0, 10.0])
 def test_compiled_cf_values_match_the_numpy_reference(t):
     omega = np.arange(6000) * 0.05
-    got = fourier._cf_values(omega, ANDERSEN_I, t, 0.01)
+    got = series.cf_values(omega, ANDERSEN_I, t, 0.01)
     want = reference_cf_values(omega, ANDERSEN_I, t, 0.01)
     assert np.max(np.abs(got - want)) < 1e-13  # |cf| <= 1
 
@@ -56,7 +56,7 @@ def test_compiled_fourier_sums_match_the_matrix_product_form():
     rng = np.random.default_rng(8)
     coef = rng.normal(size=(7000, 2)) / np.arange(1, 7001)[:, None] + 0j
     angle = rng.uniform(0, np.pi, 9)
-    got = fourier._fourier_sums(angle, coef)
+    got = series.fourier_sums(angle, coef)
     assert np.max(np.abs(got - reference_fourier_sums(angle, coef))) < 1e-13
 
 
@@ -66,8 +66,8 @@ def test_fourier_sums_have_the_same_bits_however_the_angles_are_grouped():
     rng = np.random.default_rng(9)
     coef = (rng.normal(size=(3000, 2)) + 1j * rng.normal(size=(3000, 2))) / 50.0
     angle = rng.uniform(0, np.pi, 11)
-    whole = fourier._fourier_sums(angle, coef)
-    pieces = [fourier._fourier_sums(angle[i:j], coef) for i, j in [(0, 1), (1, 3), (3, 6), (6, 11)]]
+    whole = series.fourier_sums(angle, coef)
+    pieces = [series.fourier_sums(angle[i:j], coef) for i, j in [(0, 1), (1, 3), (3, 6), (6, 11)]]
     np.testing.assert_array_equal(np.concatenate(pieces), whole)
 
 
@@ -118,10 +118,10 @@ def test_complex_arguments_are_accepted():
 
 
 def test_cached_series_give_the_same_prices_as_a_cold_call():
-    fourier._SERIES.clear()
+    series.SERIES.clear()
     first = heston_price(ANDERSEN_I, 100, [80.0, 100.0], 10.0, 0.02, 0.01)
     warm = heston_price(ANDERSEN_I, 100, [95.0, 120.0], 10.0, 0.02, 0.01)  # same model, maturity
-    fourier._SERIES.clear()
+    series.SERIES.clear()
     cold = heston_price(ANDERSEN_I, 100, [95.0, 120.0], 10.0, 0.02, 0.01)
     np.testing.assert_array_equal(warm, cold)
     again = heston_price(ANDERSEN_I, 100, [80.0, 100.0], 10.0, 0.02, 0.01)
@@ -129,11 +129,11 @@ def test_cached_series_give_the_same_prices_as_a_cold_call():
 
 
 def test_a_further_strike_at_a_cached_maturity_evaluates_no_characteristic_function(monkeypatch):
-    fourier._SERIES.clear()
+    series.SERIES.clear()
     heston_price(ANDERSEN_I, 100, 100.0, 1.0)
     calls = []
-    real = fourier._cf_values
-    monkeypatch.setattr(fourier, "_cf_values", lambda *a: calls.append(a) or real(*a))
+    real = series.cf_values
+    monkeypatch.setattr(series, "cf_values", lambda *a: calls.append(a) or real(*a))
     heston_price(ANDERSEN_I, 100, 101.0, 1.0)
     assert calls == []
     heston_price(ANDERSEN_I, 100, 101.0, 1.5)  # a new maturity does
@@ -142,27 +142,27 @@ def test_a_further_strike_at_a_cached_maturity_evaluates_no_characteristic_funct
 
 def test_remembered_maturity_facts_change_no_price_and_stay_bounded():
     maturities = np.array([[0.5], [2.0]])
-    fourier._law_facts_kept.cache_clear()
-    fourier._SERIES.clear()
+    series.law_facts_kept.cache_clear()
+    series.SERIES.clear()
     cold = heston_price(ANDERSEN_I, 100, [90.0, 110.0], maturities, 0.02)
-    fourier._SERIES.clear()  # the series rebuilt, the facts of the maturities remembered
+    series.SERIES.clear()  # the series rebuilt, the facts of the maturities remembered
     warm = heston_price(ANDERSEN_I, 100, [90.0, 110.0], maturities, 0.02)
     np.testing.assert_array_equal(warm, cold)
-    kept = fourier._law_facts_kept.cache_info().currsize
-    many = np.linspace(0.1, 5.0, fourier.LAW_FACTS_MATURITIES + 1)  # too many to keep
+    kept = series.law_facts_kept.cache_info().currsize
+    many = np.linspace(0.1, 5.0, series.LAW_FACTS_MATURITIES + 1)  # too many to keep
     heston_price(FO, 100, 100.0, many)
-    assert fourier._law_facts_kept.cache_info().currsize == kept
+    assert series.law_facts_kept.cache_info().currsize == kept
 
 
 def test_a_full_cache_evicts_instead_of_growing(monkeypatch):
     maturities = np.linspace(0.5, 5.0, 12)[:, None]
     strikes = np.array([70.0, 100.0, 140.0])
-    unbounded = fourier._SeriesCache(max_bytes=1 << 40)
-    monkeypatch.setattr(fourier, "_SERIES", unbounded)
+    unbounded = series.SeriesCache(max_bytes=1 << 40)
+    monkeypatch.setattr(series, "SERIES", unbounded)
     heston_price_details(ANDERSEN_I, 100, strikes, maturities)
     assert unbounded.nbytes > 4_000_000  # so a 2 MB cache must evict
-    small = fourier._SeriesCache(max_bytes=2_000_000)
-    monkeypatch.setattr(fourier, "_SERIES", small)
+    small = series.SeriesCache(max_bytes=2_000_000)
+    monkeypatch.setattr(series, "SERIES", small)
     details = heston_price_details(ANDERSEN_I, 100, strikes, maturities)
     assert 0 < small.nbytes <= 2_000_000
     stored = len(small)
@@ -175,10 +175,12 @@ def test_a_full_cache_evicts_instead_of_growing(monkeypatch):
 
 
 def test_cache_entries_larger_than_the_cache_are_not_kept():
-    cache = fourier._SeriesCache(max_bytes=10)
-    value = cache.get("key", fourier._series, FO, 1.0, 0.0, -1.0, 1.0, 64)
+    cache = series.SeriesCache(max_bytes=10)
+    value = cache.get("key", series.series_on_range, FO, 1.0, 0.0, -1.0, 1.0, 64)
     assert len(cache) == 0 and cache.nbytes == 0
-    np.testing.assert_array_equal(value.coef, fourier._series(FO, 1.0, 0.0, -1.0, 1.0, 64).coef)
+    np.testing.assert_array_equal(
+        value.coef, series.series_on_range(FO, 1.0, 0.0, -1.0, 1.0, 64).coef
+    )
 
 
 def test_prices_are_bit_identical_for_one_and_two_threads(monkeypatch):
@@ -187,18 +189,18 @@ def test_prices_are_bit_identical_for_one_and_two_threads(monkeypatch):
     # The thresholds are lowered so that every slice of work here is split.
     from rootvar.core.runtime import numba
 
-    monkeypatch.setattr(fourier, "SPLIT_WORK", 1)
-    monkeypatch.setattr(fourier, "CF_SPLIT_WORK", 1)
+    monkeypatch.setattr(series, "SPLIT_WORK", 1)
+    monkeypatch.setattr(series, "CF_SPLIT_WORK", 1)
 
     strikes = np.linspace(40.0, 250.0, 60)
     maturities = np.array([0.1, 1.0, 10.0])[:, None]
     threads = numba.get_num_threads()
     try:
         numba.set_num_threads(1)
-        fourier._SERIES.clear()
+        series.SERIES.clear()
         one = heston_price_details(ANDERSEN_I, 100, strikes, maturities, 0.02, 0.01)
         numba.set_num_threads(min(2, numba.config.NUMBA_NUM_THREADS))
-        fourier._SERIES.clear()
+        series.SERIES.clear()
         two = heston_price_details(ANDERSEN_I, 100, strikes, maturities, 0.02, 0.01)
     finally:
         numba.set_num_threads(threads)

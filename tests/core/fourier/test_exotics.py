@@ -382,9 +382,9 @@ def test_spiky_forward_start_falls_back_to_quadrature_and_stays_right():
     # quantiles of scipy.stats.ncx2, scipy 1.17; rootvar.core.heston_price).
     p = HestonParams(0.2472, 0.06308, 0.02628, 1.0834, -0.0452)
     t0, big_t, share = 1.0, 1.02, 1.0
-    cf = fourier_exotics._forward_start_log_cf(p, t0, big_t, 0.0)
+    cf = fourier_exotics.forward_start_log_cf(p, t0, big_t, 0.0)
     with pytest.raises(FourierConvergenceError, match="within 524288 terms"):
-        fourier_exotics._cos_put(cf, -np.log(share), share, 1.0, "forward-start")
+        fourier_exotics.cos_put(cf, -np.log(share), share, 1.0, "forward-start")
     kappa_s = p.kappa - p.rho * p.vol_of_vol
     law = cir_transition(p.v0, kappa_s, p.kappa * p.theta / kappa_s, p.vol_of_vol, t0)
     assert law.cdf(1e-6) > 0.6

@@ -15,7 +15,7 @@ from rootvar.core import (
     mc_price,
     step_study,
 )
-from rootvar.core.montecarlo.kernels import _uniforms, block_paths
+from rootvar.core.montecarlo.kernels import block_paths, fill_uniforms
 from rootvar.core.montecarlo.schemes import kernel_constants
 
 FO = HestonParams(v0=0.0175, kappa=1.5768, theta=0.0398, vol_of_vol=0.5751, rho=-0.5711)
@@ -111,7 +111,7 @@ def test_mirrored_uniforms_pair_exactly_and_stay_below_one():
     # antithetic mirror must map that grid onto itself, 0 included.
     gen = np.random.Generator(np.random.SFC64(9))
     u = np.empty(BLOCK)
-    _uniforms(gen, u, BLOCK, True)
+    fill_uniforms(gen, u, BLOCK, True)
     first, mirrored = u[: BLOCK // 2], u[BLOCK // 2 :]
     assert np.all(first + mirrored == 1.0 - 2.0**-53)
     assert np.all((mirrored >= 0.0) & (mirrored < 1.0))

@@ -507,19 +507,19 @@ def test_bad_market_input():
 
 def test_refinement_rules():
     # Richardson (1911): prices P* + c h^2 on h, 2h, 4h extrapolate to P* exactly.
-    from rootvar.core.pde.solver import _refinement
+    from rootvar.core.pde.solver import refinement_estimate
 
-    price, error, order, extrapolated = _refinement((1.01, 1.04, 1.16), SPOT)
+    price, error, order, extrapolated = refinement_estimate((1.01, 1.04, 1.16), SPOT)
     assert extrapolated and order == pytest.approx(2.0)
     assert price == pytest.approx(1.0, abs=1e-14) and error == pytest.approx(0.01)
     # first order: no extrapolation, the last difference is the estimate
-    price, error, order, extrapolated = _refinement((1.1, 1.2, 1.4), SPOT)
+    price, error, order, extrapolated = refinement_estimate((1.1, 1.2, 1.4), SPOT)
     assert not extrapolated and price == 1.1 and error == pytest.approx(0.1)
     # order below one: the geometric tail |d1| / (2^p - 1)
-    _, error, _, _ = _refinement((1.1, 1.2, 1.35), SPOT)
+    _, error, _, _ = refinement_estimate((1.1, 1.2, 1.35), SPOT)
     assert error == pytest.approx(0.1 / 0.5)
     # differences that do not shrink: both are counted
-    _, error, order, extrapolated = _refinement((1.0, 1.1, 1.0), SPOT)
+    _, error, order, extrapolated = refinement_estimate((1.0, 1.1, 1.0), SPOT)
     assert math.isnan(order) and not extrapolated and error == pytest.approx(0.2)
 
 
