@@ -9,22 +9,35 @@ fills the same cells.
 
 from __future__ import annotations
 
-import io
-import re
-import textwrap
-import zipfile
-from datetime import datetime
 from pathlib import Path
 
 from openpyxl import Workbook
 from openpyxl.chart import BarChart, Reference, ScatterChart, Series
 from openpyxl.formatting.rule import FormulaRule
-from openpyxl.styles import Alignment, Font, PatternFill
+from openpyxl.styles import Alignment
 from openpyxl.utils import get_column_letter
 from openpyxl.worksheet.formula import ArrayFormula
 
 from rootvar.addin.cli.text import CAUTION
 from rootvar.addin.workbooks.demo_desk import DESK_NAME, demo_models
+from rootvar.addin.workbooks.style import (
+    BOLD,
+    BREACH,
+    FORMATS,
+    INPUT,
+    LINE_HEIGHT,
+    NOTE,
+    TITLE,
+    array_formula,
+    axes,
+    column_widths,
+    heading,
+    line_style,
+    number_format,
+    print_setup,
+    save_deterministic,
+    table_header,
+)
 from rootvar.core import DEFAULT_QUANTILES
 
 __all__ = ["CONTROL", "PARAMETER_CHECK", "PRICE_TWICE", "build_all", "save_deterministic"]
@@ -32,143 +45,6 @@ __all__ = ["CONTROL", "PARAMETER_CHECK", "PRICE_TWICE", "build_all", "save_deter
 PARAMETER_CHECK = "parameter_check.xlsx"
 PRICE_TWICE = "price_twice.xlsx"
 CONTROL = "control.xlsx"
-
-_FIXED_TIME = datetime(2026, 1, 5, 9, 0, 0)
-_STAMP = b"2026-01-05T09:00:00Z"
-_TITLE = Font(bold=True, size=13)
-_BOLD = Font(bold=True)
-_NOTE = Font(italic=True, size=9, color="555555")
-_INPUT = PatternFill("solid", fgColor="EEF2F5")  # pale blue-grey: cells a user may change
-
-
-def save_deterministic(wb: Workbook, path: Path) -> None:
-    """Save with fixed document times and zip timestamps, so rebuilds are byte-identical."""
-    wb.properties.creator = "rootvar"
-    wb.properties.created = _FIXED_TIME
-    wb.properties.modified = _FIXED_TIME
-    wb.properties.lastModifiedBy = "rootvar"
-    raw = io.BytesIO()
-    wb.save(raw)
-    raw.seek(0)
-    out = io.BytesIO()
-    with zipfile.ZipFile(raw) as src, zipfile.ZipFile(out, "w", zipfile.ZIP_DEFLATED) as dst:
-        for info in src.infolist():
-            fixed = zipfile.ZipInfo(info.filename, date_time=(1980, 1, 1, 0, 0, 0))
-            fixed.compress_type = zipfile.ZIP_DEFLATED
-            fixed.external_attr = 0o644 << 16
-            data = src.read(info.filename)
-            if info.filename == "docProps/core.xml":
-                # openpyxl stamps the save time into "modified"; pin it
-                data = re.sub(rb"(<dcterms:modified[^>]*>)[^<]*", rb"\g<1>" + _STAMP, data)
-            dst.writestr(fixed, data)
-    path.write_bytes(out.getvalue())
-
-
-def _heading(ws, title: str, note: str = CAUTION) -> None:
-    ws["A1"], ws["A2"] = title, note
-    ws["A1"].font, ws["A2"].font = _TITLE, _NOTE
-
-
-# ------------------------------------------------------------------ number formats
-#: One format per kind of quantity (tests check each kind of cell).
-FORMATS = {
-    "price": "0.0000",
-    "vol": "0.00%",
-    "rate": "0.00%",
-    # probabilities as percentages, scientific where tiny (below 0.1%)
-    "probability": "[=0]0%;[<0.001]0.00E+00;0.00%",
-    "bp": "0.0",
-    "seconds": "0.00",
-    "years": "0.00",
-    "step_years": "0.00000",
-    "days": "0.00",
-    "variance": "0.0000",
-    "variance_log": "0.00E+00",  # quantiles and levels spanning decades
-    "ratio": "0.000",
-    "param": "0.00",
-    "count": "#,##0",
-    "seed": "0",  # at most 15 digits, all a spreadsheet keeps
-    "z": "0.00",
-}
-
-#: Width rule: a column is as wide as its longest header word plus 2, at least
-#: as wide as its values need, and a header wraps into lines of that width; the
-#: header row is 15 points tall per wrapped line.
-LINE_HEIGHT = 15.0
-
-
-def header_lines(text: str, width: float) -> list[str]:
-    """The lines a wrapped header takes in a column of ``width`` characters."""
-    return textwrap.wrap(str(text), max(1, int(width) - 1), break_long_words=False) or [""]
-
-
-def _table_header(ws, row: int, col: int, headers, min_widths=None) -> None:
-    """Write a bold, wrapped header row and fit widths and row height to it."""
-    min_widths = min_widths or {}
-    tallest = 1
-    for j, text in enumerate(headers):
-        letter = get_column_letter(col + j)
-        cell = ws.cell(row=row, column=col + j, value=text)
-        cell.font = _BOLD
-        cell.alignment = Alignment(wrap_text=True, vertical="bottom")
-        longest_word = max((len(w) for w in str(text).split()), default=4)
-        width = max(
-            longest_word + 2, min_widths.get(j, 10), ws.column_dimensions[letter].width or 0
-        )
-        ws.column_dimensions[letter].width = width
-        tallest = max(tallest, len(header_lines(str(text), width)))
-    ws.row_dimensions[row].height = LINE_HEIGHT * tallest
-
-
-def _print_setup(ws, title_rows: str | None = None) -> None:
-    """Landscape, one page wide, title rows repeated on every page."""
-    ws.page_setup.orientation = "landscape"
-    ws.page_setup.paperSize = ws.PAPERSIZE_A4
-    ws.page_setup.fitToWidth = 1
-    ws.page_setup.fitToHeight = 0
-    ws.sheet_properties.pageSetUpPr.fitToPage = True
-    ws.print_options.gridLines = False
-    if title_rows:
-        ws.print_title_rows = title_rows
-
-
-def _fmt(ws, ref: str, kind: str) -> None:
-    for row in ws[ref] if ":" in ref else [[ws[ref]]]:
-        for cell in row:
-            cell.number_format = FORMATS[kind]
-
-
-def _axes(chart, x_title: str, y_title: str) -> None:
-    """Axes set explicitly, shown in every spreadsheet program."""
-    chart.x_axis.title, chart.y_axis.title = x_title, y_title
-    for axis in (chart.x_axis, chart.y_axis):
-        axis.delete = False
-        axis.majorTickMark = "out"
-    chart.x_axis.tickLblPos = chart.y_axis.tickLblPos = "low"
-
-
-_MARKERS = ("circle", "square", "triangle", "diamond", "x")
-_DASHES = ("solid", "dash", "sysDot", "lgDash", "dashDot")
-
-
-def _styled(series, k: int) -> None:
-    """Markers and dashes so overlapping lines stay visible."""
-    series.marker.symbol = _MARKERS[k % len(_MARKERS)]
-    series.marker.size = 7
-    series.graphicalProperties.line.dashStyle = _DASHES[k % len(_DASHES)]
-    series.graphicalProperties.line.width = 22000
-    series.smooth = False
-
-
-def _widths(ws, widths):
-    for col, width in widths.items():
-        ws.column_dimensions[col].width = width
-
-
-def _array(ws, top_left: str, rows: int, cols: int, text: str) -> None:
-    cell = ws[top_left]
-    last = get_column_letter(cell.column + cols - 1) + str(cell.row + rows - 1)
-    ws[top_left] = ArrayFormula(f"{top_left}:{last}", text)
 
 
 def _params_block(ws, row: int, col: int, params, fill=True) -> str:
@@ -180,7 +56,7 @@ def _params_block(ws, row: int, col: int, params, fill=True) -> str:
         cell = ws.cell(row=row + i, column=col + 1, value=getattr(params, label))
         cell.number_format = FORMATS[kinds[i]]
         if fill:
-            cell.fill = _INPUT
+            cell.fill = INPUT
     a = f"{get_column_letter(col)}{row}"
     b = f"{get_column_letter(col + 1)}{row + 4}"
     return f"{a}:{b}"
@@ -192,26 +68,23 @@ def _step_words(cell: str) -> str:
     return f'"step "&{days}&IF({days}=1," trading day"," trading days")'
 
 
-_BREACH = PatternFill("solid", fgColor="F4C7C3")  # rose: the cell that breached, and its rule
-
-
 def build_parameter_check(path: Path) -> None:
     """The trader's workbook: every desk model's Euler risk and one model's exact law."""
     wb = Workbook()
     ws = wb.active
     ws.title = "Desk models"
-    _heading(ws, f"{DESK_NAME}: Heston variance check (invented data)")
+    heading(ws, f"{DESK_NAME}: Heston variance check (invented data)")
     ws["A4"], ws["B4"] = "Production Euler step (years)", "=1/252"
     ws["C4"] = '=ROUND(B4*252,2)&" trading days"'
     ws["A5"], ws["B5"] = "Acceptable one-step negative probability", 0.001
-    _fmt(ws, "B4", "step_years")
-    _fmt(ws, "B5", "probability")
-    ws["B5"].fill = _INPUT
+    number_format(ws, "B4", "step_years")
+    number_format(ws, "B5", "probability")
+    ws["B5"].fill = INPUT
     ws["A6"] = (
         "Shaded blue-grey: inputs. Shaded rose: a negative-step probability above the "
         "acceptable one (B5), and B5 itself when any row breaches it."
     )
-    ws["A6"].font = _NOTE
+    ws["A6"].font = NOTE
     header = [
         "model",
         "underlying",
@@ -237,7 +110,7 @@ def build_parameter_check(path: Path) -> None:
         f"riskiest variance level v* ({step})",
     ]
     shown += header[11:]
-    _table_header(ws, 7, 1, shown, {1: 24, 8: 16, 9: 16, 10: 16, 11: 12, 12: 12})
+    table_header(ws, 7, 1, shown, {1: 24, 8: 16, 9: 16, 10: 16, 11: 12, 12: 12})
     for j, h in enumerate(header, start=1):
         ws.cell(row=7, column=j, value=h)
     models = demo_models()
@@ -250,7 +123,7 @@ def build_parameter_check(path: Path) -> None:
         for j, kind in zip(
             range(3, 8), ("variance", "param", "variance", "param", "param"), strict=True
         ):
-            ws.cell(row=r, column=j).fill = _INPUT
+            ws.cell(row=r, column=j).fill = INPUT
             ws.cell(row=r, column=j).number_format = FORMATS[kind]
         block = f"C{r}:G{r}"
         ws[f"H{r}"] = f"=ROOTVAR_FELLER({block})"
@@ -259,29 +132,29 @@ def build_parameter_check(path: Path) -> None:
         ws[f"K{r}"] = f"=ROOTVAR_EULER_WORST_LEVEL({block},$B$4)"
         ws[f"L{r}"] = f"=ROOTVAR_EULER_SAFE_STEP({block},$B$5)"
         ws[f"M{r}"] = f'=IF(L{r}="unbounded","unbounded",L{r}*252)'
-        _fmt(ws, f"H{r}", "ratio")
-        _fmt(ws, f"I{r}", "probability")
-        _fmt(ws, f"J{r}", "probability")
-        _fmt(ws, f"K{r}", "variance_log")
-        _fmt(ws, f"L{r}", "step_years")
-        _fmt(ws, f"M{r}", "days")
+        number_format(ws, f"H{r}", "ratio")
+        number_format(ws, f"I{r}", "probability")
+        number_format(ws, f"J{r}", "probability")
+        number_format(ws, f"K{r}", "variance_log")
+        number_format(ws, f"L{r}", "step_years")
+        number_format(ws, f"M{r}", "days")
     last = 7 + len(models)
     ws.conditional_formatting.add(
-        f"I8:I{last}", FormulaRule(formula=["I8>$B$5"], fill=_BREACH, stopIfTrue=False)
+        f"I8:I{last}", FormulaRule(formula=["I8>$B$5"], fill=BREACH, stopIfTrue=False)
     )
     ws.conditional_formatting.add(
-        "B5", FormulaRule(formula=[f"MAX(I8:I{last})>B5"], fill=_BREACH, stopIfTrue=False)
+        "B5", FormulaRule(formula=[f"MAX(I8:I{last})>B5"], fill=BREACH, stopIfTrue=False)
     )
-    _widths(ws, {"A": 14})
+    column_widths(ws, {"A": 14})
     for ref in ("A4", "A5"):  # long labels wrap in the model column rather than run under B
         ws[ref].alignment = Alignment(wrap_text=True, vertical="top")
         ws.row_dimensions[ws[ref].row].height = LINE_HEIGHT * 3
     ws.freeze_panes = "C8"
-    _print_setup(ws, "7:7")
+    print_setup(ws, "7:7")
 
     law = wb.create_sheet("Variance law")
     chosen = next(m for m in models if m.model_id == "TMS-BIO")
-    _heading(
+    heading(
         law,
         f"Exact law of the variance: {chosen.model_id} ({chosen.underlying})",
         "Change the parameters or horizons (shaded); the table and charts follow. " + CAUTION,
@@ -289,23 +162,23 @@ def build_parameter_check(path: Path) -> None:
     block = _params_block(law, 4, 1, chosen.params)
     law["A10"], law["B10"] = "Production Euler step (years)", "='Desk models'!B4"
     law["C10"] = '=ROUND(B10*252,2)&" trading days"'
-    _fmt(law, "B10", "step_years")
+    number_format(law, "B10", "step_years")
     law["A11"], law["B11"] = "Near-zero variance level", 1e-4
-    _fmt(law, "B11", "variance_log")
-    law["B11"].fill = _INPUT
+    number_format(law, "B11", "variance_log")
+    law["B11"].fill = INPUT
     law["A14"] = "horizons (years)"
-    law["A14"].font = _BOLD
+    law["A14"].font = BOLD
     law["A14"].alignment = Alignment(vertical="bottom")
     horizons = [0.08, 0.25, 0.5, 1.0, 2.0, 5.0]
     for i, h in enumerate(horizons):
-        law.cell(row=15 + i, column=1, value=h).fill = _INPUT
+        law.cell(row=15 + i, column=1, value=h).fill = INPUT
         law.cell(row=15 + i, column=1).number_format = FORMATS["years"]
     h_range = f"A15:A{14 + len(horizons)}"
     # horizon, mean, std, quantiles, near zero, Euler at v0, worst case, v*, P(v <= v*), notes
     cols = 1 + 2 + len(DEFAULT_QUANTILES) + 1 + 4 + 1
     law["C13"] = "exact-law table (the Euler columns state the step)"
-    law["C13"].font = _BOLD
-    _array(
+    law["C13"].font = BOLD
+    array_formula(
         law, "C14", 1 + len(horizons), cols, f"=ROOTVAR_VARIANCE_TABLE({block},{h_range},,B10,B11)"
     )
     first, last = 15, 14 + len(horizons)
@@ -322,7 +195,7 @@ def build_parameter_check(path: Path) -> None:
     words += [f"P(variance <= v*) {step}", "notes"]
     widths = {j: 11 for j in range(len(words))}
     widths.update({j: 17 for j in range(len(words) - 5, len(words) - 1)})
-    _table_header(law, 14, 3, words, widths)
+    table_header(law, 14, 3, words, widths)
     for j in range(len(words)):
         law.cell(row=14, column=3 + j).value = None  # the array formula fills the header
     law["C14"] = ArrayFormula(
@@ -333,7 +206,7 @@ def build_parameter_check(path: Path) -> None:
     near_zero_col = 3 + 3 + len(DEFAULT_QUANTILES)  # C + horizon, mean, std, quantiles
     bars = BarChart()
     bars.title = "P(variance below the near-zero level)"
-    _axes(bars, "horizon (years)", "probability")
+    axes(bars, "horizon (years)", "probability")
     bars.y_axis.numFmt = "0%"
     bars.add_data(
         Reference(law, min_col=near_zero_col, min_row=14, max_row=last), titles_from_data=True
@@ -345,7 +218,7 @@ def build_parameter_check(path: Path) -> None:
     quant = ScatterChart()
     quant.title = "Variance quantiles (log scale)"
     quant.style = 13
-    _axes(quant, "horizon (years)", "variance (log scale)")
+    axes(quant, "horizon (years)", "variance (log scale)")
     quant.y_axis.scaling.logBase = 10
     quant.y_axis.numFmt = "0.0E+00"
     quant.x_axis.scaling.min = 0
@@ -355,14 +228,14 @@ def build_parameter_check(path: Path) -> None:
         series = Series(
             Reference(law, min_col=6 + k, min_row=14, max_row=last), xs, title_from_data=True
         )
-        _styled(series, n)
+        line_style(series, n)
         quant.series.append(series)
     quant.height, quant.width = 9, 15
     quant.legend.position = "b"
     law.add_chart(quant, "J22")
-    _widths(law, {"A": 30, "B": 12})
+    column_widths(law, {"A": 30, "B": 12})
     law.freeze_panes = "A15"
-    _print_setup(law, "14:14")
+    print_setup(law, "14:14")
     from rootvar.addin.workbooks.calibration import add_calibration_sheet
 
     add_calibration_sheet(wb)
@@ -376,9 +249,9 @@ def build_price_twice(path: Path) -> None:
     ws = wb.active
     ws.title = "Price twice"
     model = next(m for m in demo_models() if m.model_id == "CRV-SHP")
-    _heading(ws, f"{DESK_NAME}: {model.underlying} call priced twice (invented data)")
+    heading(ws, f"{DESK_NAME}: {model.underlying} call priced twice (invented data)")
     ws["A4"] = "Model"
-    ws["A4"].font = _BOLD
+    ws["A4"].font = BOLD
     block = _params_block(ws, 5, 1, model.params)
     inputs = [
         ("spot", model.spot, "price"),
@@ -394,30 +267,30 @@ def build_price_twice(path: Path) -> None:
         ("tolerance (vol bp)", 10.0, "bp"),
     ]
     ws["A11"] = "Option and simulation"
-    ws["A11"].font = _BOLD
+    ws["A11"].font = BOLD
     for i, (label, value, kind) in enumerate(inputs):
         ws.cell(row=12 + i, column=1, value=label)
         cell = ws.cell(row=12 + i, column=2, value=value)
-        cell.fill = _INPUT
+        cell.fill = INPUT
         if kind:
             cell.number_format = FORMATS[kind]
     ws["A23"] = "production step"
     ws["B23"] = "=B14/B19"
-    _fmt(ws, "B23", "step_years")
+    number_format(ws, "B23", "step_years")
     ws["A24"] = '=ROUND(B23*252,2)&" trading days per step"'
     ws["A26"] = "Shaded blue-grey: inputs."
-    ws["A26"].font = _NOTE
+    ws["A26"].font = NOTE
     market = "B12,B13,B14,B15,B16,B17"
     mc = f"{market},B18,B19,B20,B21"
     ws["D4"] = "Fourier (COS)"
-    ws["D4"].font = _BOLD
+    ws["D4"].font = BOLD
     ws["D5"], ws["E5"] = "price", f"=ROOTVAR_FOURIER_PRICE({block},{market})"
     ws["D6"], ws["E6"] = "implied vol", f"=ROOTVAR_IMPLIED_VOL(E5,{market})"
-    _fmt(ws, "E5", "price")
-    _fmt(ws, "E6", "vol")
+    number_format(ws, "E5", "price")
+    number_format(ws, "E6", "vol")
     ws["D8"] = '="Monte Carlo, "&B19&" steps ("&' + _step_words("B23") + '&")"'
-    ws["D8"].font = _BOLD
-    _array(ws, "D9", 8, 2, f"=ROOTVAR_MC_PRICE({block},{mc})")
+    ws["D8"].font = BOLD
+    array_formula(ws, "D9", 8, 2, f"=ROOTVAR_MC_PRICE({block},{mc})")
     for r, kind in zip(
         range(9, 17),
         (
@@ -432,24 +305,24 @@ def build_price_twice(path: Path) -> None:
         ),
         strict=True,
     ):
-        _fmt(ws, f"E{r}", kind)
+        number_format(ws, f"E{r}", kind)
     ws["D18"] = (
         '="Fourier against Monte Carlo (conditional, antithetic; "&' + _step_words("B23") + '&")"'
     )
-    ws["D18"].font = _BOLD
-    _array(ws, "D19", 10, 2, f"=ROOTVAR_MC_CHECK({block},{mc},B22)")
+    ws["D18"].font = BOLD
+    array_formula(ws, "D19", 10, 2, f"=ROOTVAR_MC_CHECK({block},{mc},B22)")
     for r, kind in zip(
         range(19, 28),
         ("price", "price", "price", "price", "bp", "z", "bp", None, "count"),
         strict=True,
     ):
         if kind:
-            _fmt(ws, f"E{r}", kind)
+            number_format(ws, f"E{r}", kind)
     ws["E28"].alignment = Alignment(wrap_text=True, vertical="top")
     ws["D28"].alignment = Alignment(vertical="top")
     ws.row_dimensions[28].height = LINE_HEIGHT * 6
     ws["G4"] = "Side by side"
-    ws["G4"].font = _BOLD
+    ws["G4"].font = BOLD
     side = [
         ("Fourier price", "=E19", "price"),
         ("Monte Carlo price (conditional)", "=E20", "price"),
@@ -463,23 +336,23 @@ def build_price_twice(path: Path) -> None:
         cell = ws.cell(row=5 + i, column=8, value=formula)
         if kind:
             cell.number_format = FORMATS[kind]
-    ws["H9"].font = _BOLD
-    _widths(ws, {"A": 24, "B": 12, "C": 3, "D": 30, "E": 44, "F": 3, "G": 30, "H": 14})
-    _print_setup(ws)
+    ws["H9"].font = BOLD
+    column_widths(ws, {"A": 24, "B": 12, "C": 3, "D": 30, "E": 44, "F": 3, "G": 30, "H": 14})
+    print_setup(ws)
 
     st = wb.create_sheet("Step study")
     st["A1"] = "Bias against Fourier by scheme and step count (conditional Monte Carlo)"
-    st["A1"].font = _TITLE
+    st["A1"].font = TITLE
     study_schemes = ["euler_absorb", "euler_full", "qe", "exact_variance"]
     st["A3"], st["B3"] = "schemes", ",".join(study_schemes)
     st["A4"], st["B4"] = "paths per cell (antithetic)", 200000
-    _fmt(st, "B4", "count")
+    number_format(st, "B4", "count")
     st["A5"] = "step counts over the maturity"
     steps = [2, 4, 8, 16, 32]
     for j, n in enumerate(steps):
-        st.cell(row=5, column=2 + j, value=n).fill = _INPUT
+        st.cell(row=5, column=2 + j, value=n).fill = INPUT
     for ref in ("B3", "B4"):
-        st[ref].fill = _INPUT
+        st[ref].fill = INPUT
     schemes = len(study_schemes)
     rows = 1 + schemes * len(steps) + 1
     pt = "'Price twice'"
@@ -488,10 +361,10 @@ def build_price_twice(path: Path) -> None:
     last_step = get_column_letter(1 + len(steps))
     headers = ["scheme", "steps", "dt (years)", "price", "std error", "bias", "bias (vol bp)"]
     headers += ["z-score", "verdict", "seconds"]
-    _table_header(st, 7, 1, headers, {0: 16, 8: 12})
+    table_header(st, 7, 1, headers, {0: 16, 8: 12})
     for j in range(len(headers)):
         st.cell(row=7, column=1 + j).value = None
-    _array(
+    array_formula(
         st,
         "A7",
         rows,
@@ -502,12 +375,12 @@ def build_price_twice(path: Path) -> None:
         for col, kind in zip(
             "CDEFGHJ", ("step_years", "price", "price", "price", "bp", "z", "seconds"), strict=True
         ):
-            _fmt(st, f"{col}{r}", kind)
-    st.cell(row=7 + rows - 1, column=2).font = _BOLD  # the recommendation
+            number_format(st, f"{col}{r}", kind)
+    st.cell(row=7 + rows - 1, column=2).font = BOLD  # the recommendation
     chart = ScatterChart()
     chart.title = "Bias (vol bp) against step count"
     chart.style = 13
-    _axes(chart, "steps over the maturity (log scale)", "bias (implied-vol basis points)")
+    axes(chart, "steps over the maturity (log scale)", "bias (implied-vol basis points)")
     chart.x_axis.scaling.logBase = 2
     chart.x_axis.scaling.min, chart.x_axis.scaling.max = 1, 64
     for s in range(schemes):
@@ -515,14 +388,14 @@ def build_price_twice(path: Path) -> None:
         xs = Reference(st, min_col=2, min_row=top, max_row=top + len(steps) - 1)
         ys = Reference(st, min_col=7, min_row=top, max_row=top + len(steps) - 1)
         series = Series(ys, xs, title=study_schemes[s])
-        _styled(series, s)
+        line_style(series, s)
         chart.series.append(series)
     chart.height, chart.width = 9, 18
     chart.legend.position = "b"
     st.add_chart(chart, "L7")
-    _widths(st, {"A": 28, "B": 14})
+    column_widths(st, {"A": 28, "B": 14})
     st.freeze_panes = "A8"
-    _print_setup(st, "7:7")
+    print_setup(st, "7:7")
     from rootvar.addin.workbooks.exotics import add_exotics_sheet
 
     add_exotics_sheet(wb)
@@ -542,7 +415,7 @@ def build_control(path: Path) -> None:
     wb = Workbook()
     ws = wb.active
     ws.title = "Settings"
-    _heading(ws, f"{DESK_NAME}: daily Heston model control")
+    heading(ws, f"{DESK_NAME}: daily Heston model control")
     defaults = {
         "feller ratio warning below": 0.3,
         "max negative-step probability": 0.001,
@@ -570,7 +443,7 @@ def build_control(path: Path) -> None:
     for i, label in enumerate(labels, start=4):
         ws.cell(row=i, column=1, value=label)
         cell = ws.cell(row=i, column=2, value=defaults[label] or None)
-        cell.fill = _INPUT
+        cell.fill = INPUT
         if label in setting_formats:
             cell.number_format = FORMATS[setting_formats[label]]
     note = 4 + len(labels) + 1
@@ -583,12 +456,12 @@ def build_control(path: Path) -> None:
             "Shaded blue-grey: inputs.",
         )
     ):
-        ws.cell(row=note + k, column=1, value=text).font = _NOTE
-    _widths(ws, {"A": 34, "B": 18})
-    _print_setup(ws)
+        ws.cell(row=note + k, column=1, value=text).font = NOTE
+    column_widths(ws, {"A": 34, "B": 18})
+    print_setup(ws)
 
     models = wb.create_sheet("Models")
-    _table_header(models, 1, 1, list(MODEL_COLUMNS), {1: 26, 10: 18, 11: 26})
+    table_header(models, 1, 1, list(MODEL_COLUMNS), {1: 26, 10: 18, 11: 26})
     model_formats = ["price", "rate", "rate", "variance", "param", "variance", "param", "param"]
     for i, m in enumerate(demo_models(), start=2):
         p = m.params
@@ -607,15 +480,15 @@ def build_control(path: Path) -> None:
             "0.8, 0.9, 1, 1.1, 1.2",
         ]
         for j, v in enumerate(row, start=1):
-            models.cell(row=i, column=j, value=v).fill = _INPUT
+            models.cell(row=i, column=j, value=v).fill = INPUT
         for j, kind in enumerate(model_formats, start=3):
             models.cell(row=i, column=j).number_format = FORMATS[kind]
     models.freeze_panes = "C2"
-    _print_setup(models, "1:1")
+    print_setup(models, "1:1")
     for title in ("Results", "History"):
         sheet = wb.create_sheet(title)
         for j, name in enumerate(RESULT_COLUMNS, start=1):
-            sheet.cell(row=1, column=j, value=name).font = _BOLD
+            sheet.cell(row=1, column=j, value=name).font = BOLD
     path.parent.mkdir(parents=True, exist_ok=True)
     save_deterministic(wb, path)
 

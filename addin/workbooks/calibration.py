@@ -11,12 +11,10 @@ from __future__ import annotations
 
 import numpy as np
 from openpyxl.chart import Reference, ScatterChart, Series
-from openpyxl.styles import Font, PatternFill
-from openpyxl.utils import get_column_letter
-from openpyxl.worksheet.formula import ArrayFormula
 
 from rootvar.addin.cli.text import CAUTION
 from rootvar.addin.workbooks.demo_desk import DESK_NAME, demo_models
+from rootvar.addin.workbooks.style import BOLD, INPUT, NOTE, TITLE, array_formula, print_setup
 from rootvar.core import HestonParams, heston_implied_vol
 
 __all__ = ["SHEET", "add_calibration_sheet", "invented_smile"]
@@ -28,10 +26,6 @@ MATURITIES = (1 / 12, 2 / 12, 3 / 12, 6 / 12, 9 / 12, 1.0, 1.5, 2.0)
 STRIKE_SD = tuple(np.linspace(-2.5, 1.5, 11))
 #: Smiles drawn in the first chart (indices into MATURITIES).
 CHARTED = (0, 3, 7)
-_TITLE = Font(bold=True, size=13)
-_BOLD = Font(bold=True)
-_NOTE = Font(italic=True, size=9, color="555555")
-_INPUT = PatternFill("solid", fgColor="EEF2F5")
 _STATS_ROWS = 19  # rows of ROOTVAR_CALIBRATE's block
 
 
@@ -58,12 +52,6 @@ def invented_smile() -> list[tuple[float, float, float]]:
     return rows
 
 
-def _array(ws, top_left: str, rows: int, cols: int, text: str) -> None:
-    cell = ws[top_left]
-    last = get_column_letter(cell.column + cols - 1) + str(cell.row + rows - 1)
-    ws[top_left] = ArrayFormula(f"{top_left}:{last}", text)
-
-
 #: Numbers in label/value blocks: up to four decimals, no trailing noise digits.
 _SHORT = "0.0###"
 
@@ -76,22 +64,13 @@ def _formats(ws, top_left: str, rows: int, cols: int, fmt: str) -> None:
             ws.cell(row=r, column=c).number_format = fmt
 
 
-def _print_setup(ws) -> None:
-    """Landscape, one page wide, as the other sheets of the workbook."""
-    ws.page_setup.orientation = "landscape"
-    ws.page_setup.paperSize = ws.PAPERSIZE_A4
-    ws.page_setup.fitToWidth = 1
-    ws.page_setup.fitToHeight = 0
-    ws.sheet_properties.pageSetUpPr.fitToPage = True
-
-
 def add_calibration_sheet(wb) -> None:
     """Append the smile-fit sheet to an openpyxl workbook."""
     m = _model()
     ws = wb.create_sheet(SHEET)
     ws["A1"] = f"{DESK_NAME}: {m.underlying} smile, free fit against Feller (invented quotes)"
     ws["A2"] = CAUTION
-    ws["A1"].font, ws["A2"].font = _TITLE, _NOTE
+    ws["A1"].font, ws["A2"].font = TITLE, NOTE
     inputs = [
         ("spot", m.spot),
         ("rate", m.rate),
@@ -101,27 +80,27 @@ def add_calibration_sheet(wb) -> None:
     ]
     for i, (label, value) in enumerate(inputs):
         ws.cell(row=4 + i, column=1, value=label)
-        ws.cell(row=4 + i, column=2, value=value).fill = _INPUT
+        ws.cell(row=4 + i, column=2, value=value).fill = INPUT
     quotes = invented_smile()
     top = 11
-    ws.cell(row=top - 1, column=1, value="market quotes").font = _BOLD
+    ws.cell(row=top - 1, column=1, value="market quotes").font = BOLD
     for j, name in enumerate(("maturity", "strike", "implied_vol")):
-        ws.cell(row=top, column=1 + j, value=name).font = _BOLD
+        ws.cell(row=top, column=1 + j, value=name).font = BOLD
     quote_formats = ("0.0000", "#,##0", "0.00%")  # years, strike, implied vol
     for i, row in enumerate(quotes, start=top + 1):
         for j, value in enumerate(row):
             cell = ws.cell(row=i, column=1 + j, value=value)
-            cell.fill, cell.number_format = _INPUT, quote_formats[j]
+            cell.fill, cell.number_format = INPUT, quote_formats[j]
     last = top + len(quotes)
     q = f"$A${top}:$C${last}"
     market = "$B$4,$B$5,$B$6"
 
     ws["E4"], ws["H4"] = "free fit", "constrained fit"
-    ws["E4"].font = ws["H4"].font = _BOLD
-    _array(ws, "E5", _STATS_ROWS, 2, f'=ROOTVAR_CALIBRATE({q},{market},"free",$B$8)')
-    _array(ws, "H5", _STATS_ROWS, 2, f"=ROOTVAR_CALIBRATE({q},{market},$B$7,$B$8)")
+    ws["E4"].font = ws["H4"].font = BOLD
+    array_formula(ws, "E5", _STATS_ROWS, 2, f'=ROOTVAR_CALIBRATE({q},{market},"free",$B$8)')
+    array_formula(ws, "H5", _STATS_ROWS, 2, f"=ROOTVAR_CALIBRATE({q},{market},$B$7,$B$8)")
     ws["K4"] = "cost of the constraint"
-    ws["K4"].font = _BOLD
+    ws["K4"].font = BOLD
     costs = [
         ("RMSE (bp)", "=I12-F12"),
         ("largest error (bp)", "=I13-F13"),
@@ -138,15 +117,19 @@ def add_calibration_sheet(wb) -> None:
 
     trade_top = 26
     ws.cell(row=trade_top - 1, column=5, value="trade-off: what the constraint costs and buys")
-    ws.cell(row=trade_top - 1, column=5).font = _BOLD
-    _array(ws, f"E{trade_top}", 18, 4, f"=ROOTVAR_FELLER_TRADEOFF({q},{market},$B$7,$B$8)")
+    ws.cell(row=trade_top - 1, column=5).font = BOLD
+    array_formula(ws, f"E{trade_top}", 18, 4, f"=ROOTVAR_FELLER_TRADEOFF({q},{market},$B$7,$B$8)")
 
     res_top = 48
     n = len(quotes)
-    ws.cell(row=res_top - 1, column=5, value="residuals, free fit").font = _BOLD
-    ws.cell(row=res_top - 1, column=12, value="residuals, constrained fit").font = _BOLD
-    _array(ws, f"E{res_top}", n + 1, 6, f'=ROOTVAR_CALIBRATION_RESIDUALS({q},{market},"free",$B$8)')
-    _array(ws, f"L{res_top}", n + 1, 6, f"=ROOTVAR_CALIBRATION_RESIDUALS({q},{market},$B$7,$B$8)")
+    ws.cell(row=res_top - 1, column=5, value="residuals, free fit").font = BOLD
+    ws.cell(row=res_top - 1, column=12, value="residuals, constrained fit").font = BOLD
+    array_formula(
+        ws, f"E{res_top}", n + 1, 6, f'=ROOTVAR_CALIBRATION_RESIDUALS({q},{market},"free",$B$8)'
+    )
+    array_formula(
+        ws, f"L{res_top}", n + 1, 6, f"=ROOTVAR_CALIBRATION_RESIDUALS({q},{market},$B$7,$B$8)"
+    )
     # spilled values take the formats of the cells they land in: no raw 15-digit numbers
     _formats(ws, "F5", _STATS_ROWS, 1, _SHORT)
     _formats(ws, "I5", _STATS_ROWS, 1, _SHORT)
@@ -157,7 +140,7 @@ def add_calibration_sheet(wb) -> None:
         for j, fmt in enumerate(residual_formats):
             letter = ws.cell(row=1, column=col + j).column_letter
             _formats(ws, f"{letter}{res_top + 1}", n, 1, fmt)
-    _print_setup(ws)
+    print_setup(ws)
     _charts(ws, res_top, len(STRIKE_SD))
     for col, width in {"A": 28, "B": 12, "E": 24, "F": 14, "H": 24, "I": 14, "K": 36}.items():
         ws.column_dimensions[col].width = width

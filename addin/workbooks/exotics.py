@@ -16,16 +16,8 @@ from openpyxl.chart.shapes import GraphicalProperties
 from openpyxl.styles import Alignment
 from openpyxl.worksheet.pagebreak import Break
 
-from rootvar.addin.workbooks.build import (
-    _BOLD,
-    _INPUT,
-    _NOTE,
-    LINE_HEIGHT,
-    _axes,
-    _heading,
-    _print_setup,
-)
 from rootvar.addin.workbooks.demo_desk import DESK_NAME, demo_models
+from rootvar.addin.workbooks.style import BOLD, INPUT, LINE_HEIGHT, NOTE, axes, heading, print_setup
 
 __all__ = ["BARRIER_LEVELS", "PRODUCTS", "SHEET", "add_exotics_sheet"]
 
@@ -79,11 +71,11 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
     """Append the exotics sheet; the model and market come from the *Price twice* sheet."""
     m = _model()
     ws = wb.create_sheet(SHEET)
-    _heading(ws, f"{DESK_NAME}: {m.underlying} exotics priced twice (invented contracts)")
+    heading(ws, f"{DESK_NAME}: {m.underlying} exotics priced twice (invented contracts)")
     pt = f"'{price_twice}'"
 
     ws["A4"] = "Model (from Price twice)"
-    ws["A4"].font = _BOLD
+    ws["A4"].font = BOLD
     names = ("v0", "kappa", "theta", "vol_of_vol", "rho")
     kinds = ("0.0000", "0.00", "0.0000", "0.00", "0.00")
     for i, (name, fmt) in enumerate(zip(names, kinds, strict=True)):
@@ -91,7 +83,7 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
         ws.cell(row=5 + i, column=2, value=f"={pt}!B{5 + i}").number_format = fmt
     block = "$A$5:$B$9"
     ws["A11"] = "Market and simulation"
-    ws["A11"].font = _BOLD
+    ws["A11"].font = BOLD
     inputs = [
         ("spot", f"={pt}!B12", _PRICE, False),
         ("rate", f"={pt}!B15", "0.00%", False),
@@ -109,7 +101,7 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
         if fmt:
             cell.number_format = fmt
         if editable:
-            cell.fill = _INPUT
+            cell.fill = INPUT
     notes = (
         "Shaded blue-grey: inputs.",
         "Tolerance: 0.1% of the spot by default.",
@@ -120,7 +112,7 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
         "Step study's count.",
     )
     for i, text in enumerate(notes):
-        ws.cell(row=22 + i, column=1, value=text).font = _NOTE
+        ws.cell(row=22 + i, column=1, value=text).font = NOTE
     market = "$B$12"
     rates = "$B$13,$B$14"
     run = "$B$15,$B$16,$B$17,$B$18"
@@ -128,18 +120,18 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
     # contracts: one column each
     cols = ("E", "F", "G")
     ws["D4"] = "contract"
-    ws["D4"].font = _BOLD
+    ws["D4"].font = BOLD
     top = 5
     for i, (label, _) in enumerate(CONTRACT_ROWS):
         ws.cell(row=top + i, column=4, value=label)
     for col, (title, spec) in zip(cols, PRODUCTS, strict=True):
         head = ws[f"{col}4"]
-        head.value, head.font = title, _BOLD
+        head.value, head.font = title, BOLD
         head.alignment = Alignment(wrap_text=True, vertical="bottom")
         for i, (_, arg) in enumerate(CONTRACT_ROWS):
             cell = ws[f"{col}{top + i}"]
             if arg in spec:
-                cell.value, cell.fill = spec[arg], _INPUT
+                cell.value, cell.fill = spec[arg], INPUT
                 if arg in ("strike", "barrier"):
                     cell.number_format = "0.00"
                 elif arg in ("maturity", "start", "strike_share"):
@@ -179,7 +171,7 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
     )
     r = top + len(CONTRACT_ROWS) + 1
     for title, rows, call in blocks:
-        ws.cell(row=r, column=4, value=title).font = _BOLD
+        ws.cell(row=r, column=4, value=title).font = BOLD
         r += 1
         for label, k, fmt in rows:
             ws.cell(row=r, column=4, value=label)
@@ -190,7 +182,7 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
                 if fmt:
                     cell.number_format = fmt
                 if label == "verdict":
-                    cell.font = _BOLD
+                    cell.font = BOLD
                 if label == "reason":
                     cell.alignment = Alignment(wrap_text=True, vertical="top")
             if label == "reason":
@@ -205,17 +197,17 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
     widths.update({"J": 12, "K": 12, "L": 12})
     for col, width in widths.items():
         ws.column_dimensions[col].width = width
-    _print_setup(ws)
+    print_setup(ws)
 
 
 def _barrier_chart(ws, row: int, block: str, market: str, rates: str, top: int) -> None:
     """Barrier price against the barrier level, by Monte Carlo and by the PDE."""
     ws.row_breaks.append(Break(id=row - 1))  # the barrier study prints on its own page
-    ws.cell(row=row, column=4, value="Down-and-out call against the barrier level").font = _BOLD
+    ws.cell(row=row, column=4, value="Down-and-out call against the barrier level").font = BOLD
     headers = ("barrier", "Monte Carlo", "MC std error", "PDE", "PDE error estimate", "PDE status")
     for j, text in enumerate(headers):
         cell = ws.cell(row=row + 1, column=4 + j, value=text)
-        cell.font = _BOLD
+        cell.font = BOLD
         # numbers sit at the right of these wide columns: so do their headers
         side = "left" if j == 0 or text == "PDE status" else "right"
         cell.alignment = Alignment(
@@ -227,7 +219,7 @@ def _barrier_chart(ws, row: int, block: str, market: str, rates: str, top: int) 
     for i, level in enumerate(BARRIER_LEVELS):
         r = first + i
         level_cell = ws.cell(row=r, column=4, value=level)
-        level_cell.number_format, level_cell.fill = "0.00", _INPUT
+        level_cell.number_format, level_cell.fill = "0.00", INPUT
         level_cell.alignment = Alignment(horizontal="left")
         mc_args = ",".join(f"$D{r}" if a == "barrier" else contract.get(a, "") for a in _ARG_ORDER)
         mc = (
@@ -257,13 +249,13 @@ def _barrier_chart(ws, row: int, block: str, market: str, rates: str, top: int) 
         value=f"Monte Carlo points: {CHART_PATHS:,} paths each. A PDE price whose status is not "
         "converged is not settled: its error estimate exceeds 0.1% of the spot.",
     )
-    ws.cell(row=last + 1, column=4).font = _NOTE
+    ws.cell(row=last + 1, column=4).font = NOTE
 
     # the gap between the methods against the Monte Carlo noise: the point of the check
     extra = ("MC minus PDE", "+3 MC std errors", "-3 MC std errors")
     for j, text in enumerate(extra):
         cell = ws.cell(row=row + 1, column=10 + j, value=text)
-        cell.font = _BOLD
+        cell.font = BOLD
         cell.alignment = Alignment(wrap_text=True, vertical="bottom", horizontal="right")
     for r in range(first, last + 1):
         for j, formula in enumerate((f"=E{r}-G{r}", f"=3*F{r}", f"=-3*F{r}")):
@@ -289,7 +281,7 @@ def _scatter(title: str, x_title: str, y_title: str) -> ScatterChart:
     """A scatter chart with its axes set explicitly (shown in every spreadsheet program)."""
     chart = ScatterChart()
     chart.title = title
-    _axes(chart, x_title, y_title)
+    axes(chart, x_title, y_title)
     chart.x_axis.scaling.min, chart.x_axis.scaling.max = 25, 39
     chart.x_axis.number_format = "0"
     chart.y_axis.number_format = "0.00"

@@ -10,16 +10,9 @@ from openpyxl.utils import get_column_letter
 from support.paths import REPO
 
 from rootvar.addin.engine import compute_workbook
-from rootvar.addin.workbooks.build import (
-    CONTROL,
-    FORMATS,
-    LINE_HEIGHT,
-    PARAMETER_CHECK,
-    PRICE_TWICE,
-    build_all,
-    header_lines,
-)
+from rootvar.addin.workbooks.build import CONTROL, PARAMETER_CHECK, PRICE_TWICE, build_all
 from rootvar.addin.workbooks.demo_desk import demo_models
+from rootvar.addin.workbooks.style import FORMATS, LINE_HEIGHT, header_lines
 from rootvar.core import euler_max_step, euler_worst_case, feller_ratio, heston_price
 
 SHIPPED = REPO / "workbooks"
