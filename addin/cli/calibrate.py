@@ -1,7 +1,6 @@
 """``rootvar calibrate QUOTES.csv --spot S``: fit free and Feller-constrained, print the trade-off.
 
-Kept out of :mod:`rootvar.addin.cli.commands` so the command line's main module only
-gains a parser entry and a handler.
+One module per command: :mod:`rootvar.addin.cli.main` registers this one's parser.
 """
 
 from __future__ import annotations
@@ -32,7 +31,7 @@ exit codes:
   2  bad input (file, columns, values, arguments): nothing was written"""
 
 
-def add_calibrate_parser(sub, handler) -> None:
+def add_calibrate_parser(sub) -> None:
     """Register the ``calibrate`` subcommand on an argparse subparsers object."""
     import argparse
 
@@ -59,7 +58,7 @@ def add_calibrate_parser(sub, handler) -> None:
     cal.add_argument("--starts", type=int, default=8, help="Sobol start points (default 8)")
     cal.add_argument("--seed", type=int, default=None, help="seed of the start points")
     cal.add_argument("--out", default=None, help="write the chosen fit as JSON here")
-    cal.set_defaults(func=handler)
+    cal.set_defaults(func=run_calibrate)
 
 
 def _feller_arg(text: str):

@@ -1,23 +1,28 @@
 """The ``rootvar`` console command's first step, which cannot itself fail to import.
 
-The command line (:mod:`rootvar.addin.cli.commands`) imports the core, pandas and numba
+The command line (:mod:`rootvar.addin.cli.main`) imports the core, pandas and numba
 at the top.  Anything that goes wrong there (a broken installation, a cache
 folder that cannot be written, a missing library) must still end as one line
 and exit code 4, never a traceback and never 0 ("clear") or 1 ("breaches"),
 which a scheduler would read as a result.  So this module imports nothing but
-the standard library until it is inside the guard.
+the standard library (and the stdlib-only :mod:`rootvar.addin.cli.exits`)
+until it is inside the guard.
 """
 
 from __future__ import annotations
 
-import os
 import sys
 import warnings
 
-__all__ = ["crash_line", "main", "quiet_pipe"]
+from rootvar.addin.cli.exits import (
+    EXIT_INTERNAL,
+    EXIT_INTERRUPTED,
+    EXIT_PIPE,
+    crash_line,
+    quiet_pipe,
+)
 
-#: The exit codes this step gives itself (the commands' own: :mod:`rootvar.addin.cli.commands`).
-EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_PIPE = 4, 130, 141
+__all__ = ["main"]
 
 _default_showwarning = warnings.showwarning
 
@@ -33,28 +38,11 @@ def _show_notice(message, category, filename, lineno, file=None, line=None):
         pass
 
 
-def crash_line(exc: BaseException) -> str:
-    """The one line that reports an unexpected exception: its kind and its message."""
-    text = " ".join(str(exc).split()) or "no message"
-    return f"{type(exc).__name__}: {text}"
-
-
-def quiet_pipe() -> None:
-    """End quietly after the reader of stdout went away (a closed pipe)."""
-    # The reader of `rootvar ... | head` has what it wanted; point stdout at devnull so
-    # the interpreter's final flush does not complain again.
-    try:
-        devnull = os.open(os.devnull, os.O_WRONLY)
-        os.dup2(devnull, sys.stdout.fileno())
-    except (OSError, ValueError, AttributeError):
-        pass
-
-
 def main(argv=None) -> int:
     """Entry point of the ``rootvar`` console command; returns the exit code."""
     warnings.showwarning = _show_notice
     try:
-        from rootvar.addin.cli.commands import main as run
+        from rootvar.addin.cli.main import main as run
 
         return run(argv)
     except SystemExit:

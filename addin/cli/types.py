@@ -11,7 +11,15 @@ import argparse
 import math
 from fractions import Fraction
 
-__all__ = ["NO_LIMIT", "number", "numbers", "path_steps_cap", "positive_int", "positive_number"]
+__all__ = [
+    "NO_LIMIT",
+    "non_negative_float",
+    "number",
+    "numbers",
+    "path_steps_cap",
+    "positive_int",
+    "positive_number",
+]
 
 #: The one word for "no limit", in sheets and on the command line alike.
 NO_LIMIT = "unbounded"
@@ -63,3 +71,14 @@ def path_steps_cap(text: str) -> int | None:
     if text.strip().lower() == NO_LIMIT:
         return None
     return positive_int(text.replace(",", "").replace("_", ""))
+
+
+def non_negative_float(text: str) -> float:
+    """argparse type: a finite number >= 0."""
+    try:
+        value = float(text)
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(f"must be a number >= 0, got {text!r}") from exc
+    if not (value >= 0 and value != float("inf")):
+        raise argparse.ArgumentTypeError(f"must be a number >= 0, got {text!r}")
+    return value

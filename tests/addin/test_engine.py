@@ -164,7 +164,7 @@ def test_a_formula_outside_the_subset_is_one_cell_error(tmp_path, formula, fragm
 
 
 def test_unsupported_and_misspelt_functions_leave_every_other_cell_computed(tmp_path, capsys):
-    from rootvar.addin.cli.commands import main
+    from rootvar.addin.cli.main import main
 
     def fill(ws, wb):
         for i, v in enumerate((0.04, 1.5, 0.04, 0.5, -0.7), start=1):

@@ -5,7 +5,7 @@ import subprocess
 import sys
 from pathlib import Path
 
-from rootvar.addin.cli.commands import main
+from rootvar.addin.cli.main import main
 from rootvar.core import compile_kernels, kernels_cached, runtime
 
 

@@ -7,7 +7,7 @@ import pandas as pd
 import pytest
 
 from rootvar.addin.cells import MARK
-from rootvar.addin.cli.commands import main
+from rootvar.addin.cli.main import main
 from rootvar.addin.functions import call
 from rootvar.core import HestonParams, calibrate, heston_implied_vol
 

@@ -1,6 +1,6 @@
 """The rootvar command line."""
 
-from rootvar.addin.cli.commands import main
+from rootvar.addin.cli.main import main
 
 
 def test_report_prints_feller_and_caution(capsys):
@@ -226,7 +226,7 @@ def test_no_limit_reads_the_same_in_sheets_and_command_line(capsys):
 
 
 def test_a_closed_output_pipe_ends_quietly(tmp_path):
-    argv = [sys.executable, "-m", "rootvar.addin.cli.commands", "report", "--v0", "0.04", "--kappa",
+    argv = [sys.executable, "-m", "rootvar.addin.cli.main", "report", "--v0", "0.04", "--kappa",
             "0.5", "--theta", "0.04", "--sigma", "1", "--rho", "-0.9"]  # fmt: skip
     proc = subprocess.Popen(argv, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
     proc.stdout.readline()

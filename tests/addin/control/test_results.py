@@ -7,7 +7,7 @@ from openpyxl import load_workbook
 from support.control_books import make_book
 
 import rootvar.addin.control as control
-from rootvar.addin.cli.commands import main
+from rootvar.addin.cli.main import main
 from rootvar.addin.control.results import FIELDS, RULE_TEXT
 
 _COL = {f.key: j for j, f in enumerate(FIELDS, start=1)}

@@ -13,11 +13,11 @@ import pytest
 from support.control_books import _digest, _rows, _without_run_time, make_book
 
 import rootvar.addin.control as control
-from rootvar.addin.cli.commands import main
+from rootvar.addin.cli.main import main
 from rootvar.addin.control.saving import BookLock, current_umask
 from rootvar.addin.control.store import HistoryStore
 
-CLI = [sys.executable, "-m", "rootvar.addin.cli.commands"]
+CLI = [sys.executable, "-m", "rootvar.addin.cli.main"]
 
 
 def _refresh_process(path, as_of, *extra):
