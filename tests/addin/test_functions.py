@@ -91,6 +91,26 @@ def test_monte_carlo_functions_match_the_core_and_are_cached():
     assert dict(check)["Fourier price"] == pytest.approx(heston_price(P, 100, 100.0, 1.0))
 
 
+def test_clear_cache_clears_every_cache_of_every_job_module(monkeypatch):
+    # The caches live in several modules of the package; one made with functools.lru_cache
+    # instead of registry.cell_cache would survive clear_cache and serve stale results.
+    import importlib
+    import pkgutil
+
+    import rootvar.addin.functions as package
+
+    found, cleared = [], []
+    for info in pkgutil.iter_modules(package.__path__):
+        module = importlib.import_module(f"{package.__name__}.{info.name}")
+        for name, obj in vars(module).items():
+            if callable(getattr(obj, "cache_clear", None)) and obj.__module__ == module.__name__:
+                where = f"{info.name}.{name}"
+                found.append(where)
+                monkeypatch.setattr(obj, "cache_clear", lambda w=where: cleared.append(w))
+    clear_cache()
+    assert len(found) >= 7 and sorted(cleared) == sorted(found)
+
+
 def test_step_study_spills_table_and_recommendation():
     rows = call(
         "ROOTVAR_STEP_STUDY", BLOCK, 100.0, 100.0, 1.0, None, None, None, "qe", [[2.0, 8.0]], 4096.0
@@ -397,9 +417,9 @@ def test_exotic_cells_build_every_product():
     ):  # fmt: skip
         out = call("ROOTVAR_EXOTIC_PRICE", *_exotic_args(product, paths=2_000, steps=8, **cells))
         assert isinstance(out, list), (product, out)
-    from rootvar.addin.functions import _exotic_product
+    from rootvar.addin.functions.exotics import product_from_cells
 
-    asian = _exotic_product(100.0, "asian", None, 100.0, 1.0, *[None] * 8)
+    asian = product_from_cells(100.0, "asian", None, 100.0, 1.0, *[None] * 8)
     assert asian.fixings == pytest.approx([(j + 1) / 12 for j in range(12)])
 
 
