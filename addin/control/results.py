@@ -316,7 +316,7 @@ def _replace_sheet(wb, title):
 CHART_ROWS = 40
 
 
-def _chart_block(ws, rows, settings: ControlSettings, top: int):
+def chart_block(ws, rows, settings: ControlSettings, top: int):
     """Chart data under the table: the rows with the largest |vol bp|, and the band."""
     drawn = [
         r for r in rows if r.get("diff_vol_bp") is not None and r.get("status") != STATUS_FAILED
@@ -332,6 +332,15 @@ def _chart_block(ws, rows, settings: ControlSettings, top: int):
         f"The {len(drawn)} rows with the largest |MC minus Fourier| (vol bp), "
         f"and the tolerance band of +-{settings.tolerance_bp:g} bp."
     )
+    # one far wing (a tiny price difference read as many vol bp) must not flatten every other
+    # bar: the axis stops at the 90th percentile of |bp| or 3 tolerances, whichever is wider
+    tol = settings.tolerance_bp
+    sizes = sorted(abs(r["diff_vol_bp"]) for r in drawn)
+    limit = max(3.0 * tol, sizes[int(0.9 * (len(sizes) - 1))])
+    limit = tol * math.ceil(limit / tol) if tol > 0 else limit
+    cut = sum(1 for x in sizes if x > limit)
+    if cut:
+        note += f" The axis stops at +-{limit:g} bp: {cut} bar(s) beyond it are cut; see the table."
     ws.cell(row=top + 1, column=c0, value=note).font = _NOTE
     head = top + 2
     headers = ("option", "MC minus Fourier (vol bp)", "+tolerance", "-tolerance")
@@ -339,8 +348,13 @@ def _chart_block(ws, rows, settings: ControlSettings, top: int):
         cell = ws.cell(row=head, column=c0 + j, value=text)
         cell.font, cell.alignment = _BOLD, _WRAP
     ws.row_dimensions[head].height = 45
-    for i, r in enumerate(drawn, start=head + 1):
-        ws.cell(row=i, column=c0, value=f"{r['model_id']} {r['maturity']:g}y K{r['strike']:g}")
+    labels = [f"{r['model_id']} {r['maturity']:g}y K{r['strike']:g}" for r in drawn]
+    letter = get_column_letter(c0)
+    ws.column_dimensions[letter].width = max(
+        ws.column_dimensions[letter].width or 0, max(len(t) for t in labels) + 2
+    )
+    for i, (r, label) in enumerate(zip(drawn, labels, strict=True), start=head + 1):
+        ws.cell(row=i, column=c0, value=label)
         values = (r["diff_vol_bp"], settings.tolerance_bp, -settings.tolerance_bp)
         for j, value in enumerate(values, start=1):
             ws.cell(row=i, column=c0 + j, value=value).number_format = _FORMATS["bp"]
@@ -353,6 +367,8 @@ def _chart_block(ws, rows, settings: ControlSettings, top: int):
     bars.set_categories(cats)
     bars.x_axis.title = "option (model, maturity, strike)"
     bars.y_axis.title = "vol bp"
+    if cut:
+        bars.y_axis.scaling.min, bars.y_axis.scaling.max = -limit, limit
     band = LineChart()
     band.add_data(
         Reference(ws, min_col=c0 + 2, max_col=c0 + 3, min_row=head, max_row=last),
@@ -380,7 +396,7 @@ def write_results(wb, rows, settings: ControlSettings):
     last = len(rows) + 1
     rule = ws.cell(row=last + 2, column=1, value=RULE_TEXT)
     rule.font = _NOTE
-    _chart_block(ws, rows, settings, last + 4)
+    chart_block(ws, rows, settings, last + 4)
     _print_setup(ws)
     return ws
 

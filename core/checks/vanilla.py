@@ -147,7 +147,9 @@ def _vega(spot, strike, t, rate, div, vol):
     """Black-Scholes vega (per unit of volatility)."""
     fwd = spot * np.exp((rate - div) * t)
     s = vol * np.sqrt(t)
-    d1 = np.log(fwd / strike) / s + 0.5 * s
+    # a zero volatility (no time value left) gives d1 = +-inf and vega 0: not worth a warning
+    with np.errstate(divide="ignore", invalid="ignore"):
+        d1 = np.log(fwd / strike) / s + 0.5 * s
     return np.exp(-rate * t) * fwd * norm.pdf(d1) * np.sqrt(t)
 
 

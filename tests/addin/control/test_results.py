@@ -173,3 +173,30 @@ def test_exit_code_says_rows_failed(tmp_path):
     path = make_book(tmp_path, edit=edit, models=2)
     code = main(["refresh", str(path), "--as-of", "2026-12-01", "--workers", "1", "--quiet"])
     assert code == control.EXIT_ROWS
+
+
+def test_one_far_wing_does_not_flatten_the_chart():
+    # 20 rows near the band and one at 300 bp: the axis stops at 3 tolerances (30 bp), the
+    # note says one bar is cut; without the outlier the axis is left to the program
+    from openpyxl import Workbook
+
+    from rootvar.addin.control.results import chart_block
+    from rootvar.core.checks.daily import ControlSettings
+
+    settings = ControlSettings()
+    rows = [
+        {"model_id": "M", "maturity": 1.0, "strike": 90.0 + i, "diff_vol_bp": 0.5 * i - 4.0}
+        for i in range(20)
+    ]
+    for extra, cut in (([], False), ([300.0], True)):
+        ws = Workbook().active
+        wing = [{"model_id": "W", "maturity": 0.5, "strike": 9.0, "diff_vol_bp": x} for x in extra]
+        chart_block(ws, rows + wing, settings, 1)
+        (chart,) = ws._charts
+        texts = [c.value for row in ws.iter_rows(min_row=2, max_row=2) for c in row if c.value]
+        assert any(("cut" in t) is cut for t in texts), texts
+        if cut:
+            limit = 3 * settings.tolerance_bp
+            assert (chart.y_axis.scaling.min, chart.y_axis.scaling.max) == (-limit, limit)
+        else:
+            assert chart.y_axis.scaling.max is None
