@@ -134,7 +134,7 @@ def cos_grid(params, spot, strike, maturity, rate=0.0, div_yield=0.0) -> CosGrid
         When the certified pricer had to fall back to its check method for
         some maturity: there is then no certified COS grid to differentiate on.
     """
-    details = heston_price_details(params, spot, strike, maturity, rate, div_yield, "put")
+    details = heston_price_details(params, spot, strike, maturity, rate, div_yield, "put", "cos")
     return grid_from_details(details, params, rate - div_yield)
 
 
@@ -315,7 +315,7 @@ def heston_price_gradient(
     )
     shape = strike.shape
     k, t = strike.ravel(), maturity.ravel()
-    details = heston_price_details(params, spot, k, t, rate, div_yield, "put")
+    details = heston_price_details(params, spot, k, t, rate, div_yield, "put", "cos")
     pricer = SurfacePricer(
         grid_from_details(details, params, rate - div_yield), spot, k, t, rate, div_yield
     )

@@ -27,7 +27,7 @@ ANDERSEN_I = HestonParams(v0=0.04, kappa=0.5, theta=0.04, vol_of_vol=1.0, rho=-0
 ANDERSEN_II = HestonParams(v0=0.04, kappa=0.3, theta=0.04, vol_of_vol=0.9, rho=-0.5)
 BROADIE_KAYA = HestonParams(v0=0.010201, kappa=6.21, theta=0.019, vol_of_vol=0.61, rho=-0.7)
 LEWIS = HestonParams(v0=0.04, kappa=4.0, theta=0.25, vol_of_vol=1.0, rho=-0.5)
-METHODS = ["cos", "quad"]
+METHODS = ["cos", "contour", "quad"]
 
 
 @pytest.mark.parametrize("method", METHODS)
@@ -99,24 +99,29 @@ def _hard_box_case(rng):
 
 
 def test_methods_agree_over_the_hard_box():
-    # Identity test: COS (default) against the adaptive Lewis/QUADPACK check,
-    # 1,000 seeded cases from the hard box, target 1e-6 x spot (a sweep of
-    # this size found a put the range did not reach; see below).
+    # Identity test: both certified routes (COS, and the contour route that
+    # method="auto" takes for these three-strike strips) against the adaptive
+    # Lewis/QUADPACK check, 1,000 seeded cases from the hard box, target
+    # 1e-6 x spot (a sweep of this size found a put the range did not reach;
+    # see below).
     rng = np.random.default_rng(20261201)
-    worst = 0.0
+    worst = {"cos": 0.0, "auto": 0.0}
     for _ in range(1000):
         p, t, r, q, k = _hard_box_case(rng)
-        fast = heston_price(p, 100, k, t, r, q)
         check = lewis_call_price(p, 100, k, t, r, q)
-        worst = max(worst, float(np.max(np.abs(fast - check))))
-    assert worst <= 1e-6 * 100
+        for method in worst:
+            fast = heston_price(p, 100, k, t, r, q, method=method)
+            worst[method] = max(worst[method], float(np.max(np.abs(fast - check))))
+    assert max(worst.values()) <= 1e-6 * 100
 
 
 def test_hard_box_corners_agree_with_the_check_method():
     # Identity test on every corner of the hard box (2^6 parameter corners x
     # 1 day and 30 years, strikes 0.3 to 3 x forward), target 1e-6 x spot.
-    # At six 1-day corners (vol_of_vol 2, rho +-0.99, v0 1e-4) the adaptive
-    # check itself cannot converge and says so; the next test covers them.
+    # At the eight 1-day corners with vol_of_vol 2 and v0 1e-4 one adaptive rule
+    # over the whole integral stalls (six of them used to give up); its second
+    # try on geometric pieces converges, within 1.1e-11 of both routes there.
+    # The next test covers them by Monte Carlo too.
     corners = itertools.product(
         [1 / 365, 30.0], [0.05, 2.0], [1e-4, 1.0], [-0.99, 0.99], [0.05, 10.0], [0.005, 0.5]
     )
@@ -124,14 +129,15 @@ def test_hard_box_corners_agree_with_the_check_method():
     for t, sigma, v0, rho, kappa, theta in corners:
         p = HestonParams(v0, kappa, theta, sigma, rho)
         k = 100 * np.exp(0.02 * t) * np.array([0.3, 0.9, 1.0, 1.1, 3.0])
-        fast = heston_price(p, 100, k, t, 0.03, 0.01)
+        fast = [heston_price(p, 100, k, t, 0.03, 0.01, method=m) for m in ("cos", "auto")]
         try:
             check = lewis_call_price(p, 100, k, t, 0.03, 0.01)
         except FourierCheckError:
             unchecked += 1
             continue
-        np.testing.assert_allclose(fast, check, rtol=0, atol=1e-6 * 100, err_msg=f"{p}, {t}")
-    assert unchecked <= 6
+        for price in fast:
+            np.testing.assert_allclose(price, check, rtol=0, atol=1e-6 * 100, err_msg=f"{p}, {t}")
+    assert unchecked == 0
 
 
 @pytest.mark.parametrize("theta", [0.005, 0.5])
@@ -246,6 +252,60 @@ def test_tiny_vol_of_vol_raises_instead_of_guessing():
         heston_price(p, 100, [70.0, 100.0], 2.0, 0.02, 0.01)
 
 
+def test_a_strike_far_above_the_spot_is_not_left_to_cos_rounding():
+    # Found by a wide sweep (issue 21): a call 82,580 x spot at 40 years was
+    # 2.4e-7 low on COS against its 1e-8 certificate, the rounding of a put of
+    # 8e6 (the call comes from it by parity).  COS now bounds that rounding and
+    # hands the strip to the check method; the contour route prices it itself.
+    # Reference: the adaptive check method (independent code); the contour
+    # route agrees with it to 2e-11.
+    p = HestonParams(
+        v0=0.7452965008269145,
+        kappa=0.9460009331471634,
+        theta=0.32651028720412184,
+        vol_of_vol=0.06849694506761819,
+        rho=-0.513385588424156,
+    )
+    strike, t = 8258002.3334599, 39.82919820536923
+    check = float(lewis_call_price(p, 100, strike, t)[0])
+    cos = heston_price_details(p, 100, strike, t, method="cos")
+    assert cos.route == "quad" and cos.fallbacks == 1 and "rounding" in str(cos.reason)
+    assert abs(float(cos.price) - check) <= 1e-10 * 100
+    auto = heston_price_details(p, 100, strike, t)
+    assert auto.route == "contour" and abs(float(auto.price) - check) <= 1e-10 * 100
+    # a strike 100 x spot still certifies on COS
+    near = heston_price_details(p, 100, 1e4, t, method="cos")
+    assert near.route == "cos"
+    assert abs(float(near.price) - lewis_call_price(p, 100, 1e4, t)[0]) <= 1e-10 * 100
+
+
+def test_vanishing_vol_of_vol_over_decades_raises_the_check_error():
+    # Found by a wide sweep (issue 21): vol_of_vol 0.001 over 25 years at kappa
+    # 24 raised ZeroDivisionError (the characteristic function loses its small
+    # real part to cancellation, so the variance came out 0 and the range had
+    # no width).  Now the range is placed by the integrated variance, COS cannot
+    # certify it and the check method says it did not converge, on both routes.
+    p = HestonParams(v0=0.11209, kappa=23.935, theta=0.38170, vol_of_vol=0.0010478, rho=0.62144)
+    for method in ("cos", "auto"):
+        with pytest.raises(FourierCheckError, match="did not converge"):
+            heston_price(p, 100, [100.0, 1708.06], 24.655, method=method)
+
+
+def test_large_vol_of_vol_with_tiny_variance_is_priced_by_both_routes():
+    # Found by a wide sweep (issue 21): vol_of_vol 5.9 with v0 9e-6 over 2.7
+    # years raised FourierCheckError: COS needs more terms than it may take,
+    # and one adaptive rule over the check's integral stalls.  The check now
+    # tries again on geometric pieces; the contour route certifies it alone.
+    # Reference: the contour route, certified (estimate 3.3e-9), and its
+    # second contour held 100 times tighter (tests/core/fourier/test_contour.py).
+    p = HestonParams(v0=8.917e-6, kappa=0.15302, theta=1.6865e-4, vol_of_vol=5.8613, rho=0.43727)
+    cos = heston_price_details(p, 100, 100.0, 2.7354, method="cos")
+    auto = heston_price_details(p, 100, 100.0, 2.7354)
+    assert cos.route == "quad" and auto.route == "contour"
+    assert float(auto.price) == pytest.approx(0.00534032009, abs=1e-10)
+    assert abs(float(cos.price) - float(auto.price)) <= 1e-10 * 100
+
+
 def test_characteristic_function_has_no_branch_jumps():
     # Albrecher et al. (2007): the rotated form is continuous in u. A long,
     # high vol-of-vol case where the original form jumps; consecutive values on
@@ -287,11 +347,11 @@ def test_series_truncation_bound_holds_when_loosened(monkeypatch, series_tol):
     # for a loose tolerance too, judged by the independent check method.
     k = np.array([40.0, 70.0, 100.0, 150.0, 300.0])
     for p, t in [(ANDERSEN_I, 0.25), (FO, 1 / 365), (FO, 5.0)]:
-        tight = heston_price_details(p, 100, k, t)
+        tight = heston_price_details(p, 100, k, t, method="cos")
         with monkeypatch.context() as patch:
             patch.setattr(series, "SERIES_TOL", series_tol)
             patch.setattr(series, "RANGE_TOL", series_tol)
-            loose = heston_price_details(p, 100, k, t)
+            loose = heston_price_details(p, 100, k, t, method="cos")
         assert loose.terms[t] < tight.terms[t]  # the bound is what sets N
         err = np.max(np.abs(loose.price - lewis_call_price(p, 100, k, t)))
         assert err <= series_tol * 100, (p, t, err)
@@ -299,8 +359,9 @@ def test_series_truncation_bound_holds_when_loosened(monkeypatch, series_tol):
 
 def test_uncertifiable_cos_falls_back_to_the_check_method(monkeypatch):
     monkeypatch.setattr(series, "MAX_TERMS", 8)
-    details = heston_price_details(FO, 100, [90.0, 110.0], 1.0)
+    details = heston_price_details(FO, 100, [90.0, 110.0], 1.0, method="cos")
     assert details.fallbacks == 2
+    assert details.route.tolist() == ["quad", "quad"] and all(details.reason)
     np.testing.assert_allclose(details.price, lewis_call_price(FO, 100, [90.0, 110.0], 1.0))
 
 

@@ -119,24 +119,25 @@ def test_complex_arguments_are_accepted():
 
 def test_cached_series_give_the_same_prices_as_a_cold_call():
     series.SERIES.clear()
-    first = heston_price(ANDERSEN_I, 100, [80.0, 100.0], 10.0, 0.02, 0.01)
-    warm = heston_price(ANDERSEN_I, 100, [95.0, 120.0], 10.0, 0.02, 0.01)  # same model, maturity
+    first = heston_price(ANDERSEN_I, 100, [80.0, 100.0], 10.0, 0.02, 0.01, method="cos")
+    # same model, maturity
+    warm = heston_price(ANDERSEN_I, 100, [95.0, 120.0], 10.0, 0.02, 0.01, method="cos")
     series.SERIES.clear()
-    cold = heston_price(ANDERSEN_I, 100, [95.0, 120.0], 10.0, 0.02, 0.01)
+    cold = heston_price(ANDERSEN_I, 100, [95.0, 120.0], 10.0, 0.02, 0.01, method="cos")
     np.testing.assert_array_equal(warm, cold)
-    again = heston_price(ANDERSEN_I, 100, [80.0, 100.0], 10.0, 0.02, 0.01)
+    again = heston_price(ANDERSEN_I, 100, [80.0, 100.0], 10.0, 0.02, 0.01, method="cos")
     np.testing.assert_array_equal(first, again)
 
 
 def test_a_further_strike_at_a_cached_maturity_evaluates_no_characteristic_function(monkeypatch):
     series.SERIES.clear()
-    heston_price(ANDERSEN_I, 100, 100.0, 1.0)
+    heston_price(ANDERSEN_I, 100, 100.0, 1.0, method="cos")
     calls = []
     real = series.cf_values
     monkeypatch.setattr(series, "cf_values", lambda *a: calls.append(a) or real(*a))
-    heston_price(ANDERSEN_I, 100, 101.0, 1.0)
+    heston_price(ANDERSEN_I, 100, 101.0, 1.0, method="cos")
     assert calls == []
-    heston_price(ANDERSEN_I, 100, 101.0, 1.5)  # a new maturity does
+    heston_price(ANDERSEN_I, 100, 101.0, 1.5, method="cos")  # a new maturity does
     assert calls
 
 
@@ -144,13 +145,13 @@ def test_remembered_maturity_facts_change_no_price_and_stay_bounded():
     maturities = np.array([[0.5], [2.0]])
     series.law_facts_kept.cache_clear()
     series.SERIES.clear()
-    cold = heston_price(ANDERSEN_I, 100, [90.0, 110.0], maturities, 0.02)
+    cold = heston_price(ANDERSEN_I, 100, [90.0, 110.0], maturities, 0.02, method="cos")
     series.SERIES.clear()  # the series rebuilt, the facts of the maturities remembered
-    warm = heston_price(ANDERSEN_I, 100, [90.0, 110.0], maturities, 0.02)
+    warm = heston_price(ANDERSEN_I, 100, [90.0, 110.0], maturities, 0.02, method="cos")
     np.testing.assert_array_equal(warm, cold)
     kept = series.law_facts_kept.cache_info().currsize
     many = np.linspace(0.1, 5.0, series.LAW_FACTS_MATURITIES + 1)  # too many to keep
-    heston_price(FO, 100, 100.0, many)
+    heston_price(FO, 100, 100.0, many, method="cos")
     assert series.law_facts_kept.cache_info().currsize == kept
 
 
@@ -159,17 +160,17 @@ def test_a_full_cache_evicts_instead_of_growing(monkeypatch):
     strikes = np.array([70.0, 100.0, 140.0])
     unbounded = series.SeriesCache(max_bytes=1 << 40)
     monkeypatch.setattr(series, "SERIES", unbounded)
-    heston_price_details(ANDERSEN_I, 100, strikes, maturities)
+    heston_price_details(ANDERSEN_I, 100, strikes, maturities, method="cos")
     assert unbounded.nbytes > 4_000_000  # so a 2 MB cache must evict
     small = series.SeriesCache(max_bytes=2_000_000)
     monkeypatch.setattr(series, "SERIES", small)
-    details = heston_price_details(ANDERSEN_I, 100, strikes, maturities)
+    details = heston_price_details(ANDERSEN_I, 100, strikes, maturities, method="cos")
     assert 0 < small.nbytes <= 2_000_000
     stored = len(small)
-    heston_price_details(ANDERSEN_I, 100, strikes, maturities + 0.01)
+    heston_price_details(ANDERSEN_I, 100, strikes, maturities + 0.01, method="cos")
     assert small.nbytes <= 2_000_000 and len(small) <= stored + 20
     # what was evicted is rebuilt to the same prices
-    again = heston_price_details(ANDERSEN_I, 100, strikes, maturities)
+    again = heston_price_details(ANDERSEN_I, 100, strikes, maturities, method="cos")
     np.testing.assert_array_equal(details.price, again.price)
     assert again.terms == details.terms
 
@@ -198,10 +199,10 @@ def test_prices_are_bit_identical_for_one_and_two_threads(monkeypatch):
     try:
         numba.set_num_threads(1)
         series.SERIES.clear()
-        one = heston_price_details(ANDERSEN_I, 100, strikes, maturities, 0.02, 0.01)
+        one = heston_price_details(ANDERSEN_I, 100, strikes, maturities, 0.02, 0.01, method="cos")
         numba.set_num_threads(min(2, numba.config.NUMBA_NUM_THREADS))
         series.SERIES.clear()
-        two = heston_price_details(ANDERSEN_I, 100, strikes, maturities, 0.02, 0.01)
+        two = heston_price_details(ANDERSEN_I, 100, strikes, maturities, 0.02, 0.01, method="cos")
     finally:
         numba.set_num_threads(threads)
     np.testing.assert_array_equal(one.price, two.price)
