@@ -14,6 +14,8 @@ from .timing import machine_line
 ALL = [
     "variance",
     "fourier",
+    "contour",
+    "greeks",
     "monte_carlo",
     "kernels",
     "refresh",

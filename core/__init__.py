@@ -18,7 +18,7 @@ from importlib.metadata import PackageNotFoundError, version
 
 #: Public names by the module that defines them.
 _MODULES = {
-    "black_scholes": ("bs_price", "implied_vol", "implied_vol_reason"),
+    "black_scholes": ("bs_greeks", "bs_price", "implied_vol", "implied_vol_reason"),
     "calibration.fit": ("Calibration", "calibrate", "calibration_tradeoff"),
     "variance.cir_law": (
         "TINY_VARIANCE",
@@ -29,11 +29,15 @@ _MODULES = {
     "runtime": ("CompileNotice",),
     "warmup": ("compile_kernels", "kernels_cached"),
     "checks.exotic": ("ExoticComparison", "compare_exotic"),
+    "checks.greeks": ("GreeksComparison", "compare_greeks", "default_greek_tolerances"),
     "fourier.cos": ("FourierDetails", "heston_implied_vol", "heston_price", "heston_price_details"),
     "fourier.check": ("FourierCheckError", "lewis_call_price"),
+    "fourier.contour": ("ContourDetails", "contour_prices"),
     "fourier.exotics": ("FourierConvergenceError", "forward_start_price", "geometric_asian_price"),
     "fourier.gradient": ("heston_price_gradient",),
+    "fourier.greeks": ("fourier_greek_tolerances", "heston_greeks", "heston_greeks_strip"),
     "montecarlo.exotic": ("ExoticMCResult", "mc_exotic"),
+    "montecarlo.greeks": ("DEFAULT_GREEKS_SCHEME", "mc_greeks"),
     "montecarlo.schemes": ("SCHEMES",),
     "montecarlo.european": (
         "BLOCK",
@@ -42,7 +46,9 @@ _MODULES = {
         "expected_negative_step_fraction",
         "mc_price",
     ),
+    "greeks": ("GREEK_NAMES", "GREEK_UNITS", "Greeks", "desk_vega"),
     "params": ("HestonParams",),
+    "pde.greeks": ("pde_greeks",),
     "pde.solver": ("PDEResult", "pde_price"),
     "products": (
         "AsianOption",

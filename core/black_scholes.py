@@ -20,7 +20,7 @@ from rootvar.core.validation import (
     scalar_or_array,
 )
 
-__all__ = ["bs_price", "implied_vol", "implied_vol_reason"]
+__all__ = ["bs_greeks", "bs_price", "implied_vol", "implied_vol_reason"]
 
 _KINDS = ("call", "put")
 _SQRT_2 = np.sqrt(2.0)
@@ -254,3 +254,88 @@ def bs_otm_price(spot, strike, maturity, vol, rate, div_yield):
     call = df * (fwd * ndtr(d1) - strike * ndtr(d2))
     put = df * (strike * ndtr(-d2) - fwd * ndtr(-d1))
     return np.where(strike >= fwd, call, put)
+
+
+def bs_greeks(spot, strike, maturity, vol, rate=0.0, div_yield=0.0, kind="call"):
+    """Black-Scholes Greeks of a European call or put.
+
+    Parameters
+    ----------
+    spot : array_like
+        Spot price, > 0.
+    strike : array_like
+        Strike, > 0.
+    maturity : array_like
+        Time to expiry in years, > 0.
+    vol : array_like
+        Black-Scholes volatility (annualised, decimal), > 0.
+    rate, div_yield : array_like
+        Continuously compounded rate and dividend yield (decimals).
+    kind : {"call", "put"}
+
+    Returns
+    -------
+    dict
+        ``"delta"`` (per unit spot), ``"gamma"`` (per unit spot squared),
+        ``"theta"`` (``dV/dt = -dV/dT``, per year), ``"vega"`` (per unit
+        volatility, 1.00 = 100 vol points), ``"rho_rate"`` and ``"rho_div"``
+        (per unit rate and dividend yield), each a float or an ndarray of
+        the broadcast shape; the definitions of :mod:`rootvar.core.greeks`.
+
+    Notes
+    -----
+    With ``d1 = (ln(S/K) + (r - q + vol^2/2) T) / (vol sqrt T)``,
+    ``d2 = d1 - vol sqrt T``, ``phi`` the normal density, ``N`` its cdf and
+    ``w = +1`` for a call, ``-1`` for a put:
+
+    * delta ``= w e^{-qT} N(w d1)``; gamma ``= e^{-qT} phi(d1) / (S vol sqrt T)``
+    * theta ``= -S e^{-qT} phi(d1) vol / (2 sqrt T) - w r K e^{-rT} N(w d2)
+      + w q S e^{-qT} N(w d1)``
+    * vega ``= S e^{-qT} phi(d1) sqrt T``
+    * rho_rate ``= w K T e^{-rT} N(w d2)``; rho_div ``= -w S T e^{-qT} N(w d1)``
+
+    References
+    ----------
+    Black, F. & Scholes, M. (1973). The pricing of options and corporate
+    liabilities. Journal of Political Economy 81(3), 637-654.
+    Merton, R. C. (1973). Theory of rational option pricing. Bell Journal of
+    Economics and Management Science 4(1), 141-183 (the dividend yield).
+    Hull, J. C. Options, Futures, and Other Derivatives, chapter "The Greek
+    letters" (the same formulas, with a dividend yield).
+
+    Examples
+    --------
+    >>> g = bs_greeks(100.0, 100.0, 1.0, 0.2)
+    >>> round(g["delta"], 4), round(g["vega"], 4)
+    (0.5398, 39.6953)
+    """
+    check_choice("kind", kind, _KINDS)
+    spot = as_float_array("spot", spot, ">0")
+    strike = as_float_array("strike", strike, ">0")
+    maturity = as_float_array("maturity", maturity, ">0")
+    vol = as_float_array("vol", vol, ">0")
+    rate = as_float_array("rate", rate)
+    div_yield = as_float_array("div_yield", div_yield)
+    spot, strike, maturity, vol, rate, div_yield = broadcast(
+        spot=spot, strike=strike, maturity=maturity, vol=vol, rate=rate, div_yield=div_yield
+    )
+    w = 1.0 if kind == "call" else -1.0
+    root_t = np.sqrt(maturity)
+    total = vol * root_t
+    d1 = (np.log(spot / strike) + (rate - div_yield) * maturity) / total + 0.5 * total
+    d2 = d1 - total
+    spot_df = spot * np.exp(-div_yield * maturity)
+    strike_df = strike * np.exp(-rate * maturity)
+    density = _INV_SQRT_2PI * np.exp(-0.5 * d1 * d1)
+    n1, n2 = ndtr(w * d1), ndtr(w * d2)
+    greeks = {
+        "delta": w * np.exp(-div_yield * maturity) * n1,
+        "gamma": np.exp(-div_yield * maturity) * density / (spot * total),
+        "theta": -spot_df * density * vol / (2.0 * root_t)
+        - w * rate * strike_df * n2
+        + w * div_yield * spot_df * n1,
+        "vega": spot_df * density * root_t,
+        "rho_rate": w * maturity * strike_df * n2,
+        "rho_div": -w * maturity * spot_df * n1,
+    }
+    return {name: scalar_or_array(value) for name, value in greeks.items()}

@@ -13,8 +13,9 @@ from __future__ import annotations
 import time
 
 from rootvar.core import runtime
-from rootvar.core.fourier import cos_kernels, gradient_kernels
+from rootvar.core.fourier import contour_kernels, cos_kernels, gradient_kernels
 from rootvar.core.montecarlo import exotic_kernels as mc_exotic_kernels
+from rootvar.core.montecarlo import greeks_kernels as mc_greeks_kernels
 from rootvar.core.montecarlo import kernels as mc_kernels
 
 __all__ = ["KERNELS", "compile_kernels", "kernels_cached"]
@@ -26,12 +27,16 @@ KERNELS = (
     cos_kernels.cf_array,
     cos_kernels.log_cf_array,
     mc_exotic_kernels.exotic_block,
+    mc_greeks_kernels.european_greeks_block,
+    mc_greeks_kernels.exotic_greeks_block,
     gradient_kernels.log_cf_gradient_array,
     gradient_kernels.put_coefficients,
     gradient_kernels.surface_sums,
     cos_kernels.cos_coefficients,
     cos_kernels.flat_sums,
     cos_kernels.cos_puts,
+    contour_kernels.contour_cells,
+    contour_kernels.contour_strip,
 )
 
 
@@ -45,7 +50,8 @@ def compile_kernels() -> float:
 
     Small calls of the public functions, so that exactly the signatures the
     library uses are compiled: every Monte Carlo scheme kind with both
-    payoffs, one Fourier price, and one price gradient (the calibration).
+    payoffs, one Fourier price by each certified route, and one price
+    gradient (the calibration).
     """
     from rootvar.core.fourier.cos import heston_price
     from rootvar.core.fourier.gradient import heston_price_gradient, log_cf_gradient
@@ -60,11 +66,21 @@ def compile_kernels() -> float:
             mc_price(
                 p, 100.0, 100.0, 1.0, scheme=scheme, steps=2, paths=64, conditional=conditional
             )
-    heston_price(p, 100.0, [90.0, 110.0], 1.0)
+    heston_price(p, 100.0, [90.0, 110.0], 1.0, method="cos")
+    heston_price(p, 100.0, [90.0, 110.0], 1.0)  # the contour route (one price, short strips)
+    _compile_contour_strike_mode(p)
     _compile_exotics(p)
+    _compile_greeks(p)
     heston_price_gradient(p, 100.0, [90.0, 110.0], 1.0)  # the calibration's kernels
     log_cf_gradient([1.0], p, 1.0)
     return time.perf_counter() - start
+
+
+def _compile_contour_strike_mode(p) -> None:
+    """The contour route's per-strike kernel (a check's second contour)."""
+    from rootvar.core.fourier.contour import contour_prices
+
+    contour_prices(p, 100.0, [90.0, 110.0], 1.0, mode="strike")
 
 
 def _compile_exotics(p) -> None:
@@ -74,3 +90,18 @@ def _compile_exotics(p) -> None:
 
     for scheme in ("euler_full", "qe", "qe_martingale", "exact_variance"):
         mc_exotic(p, 100.0, EuropeanOption("call", 100.0, 1.0), scheme=scheme, steps=2, paths=128)
+
+
+def _compile_greeks(p) -> None:
+    """The Monte Carlo Greeks' two kernels for every scheme kind (European, barrier, digital)."""
+    from rootvar.core.montecarlo.greeks import mc_greeks
+    from rootvar.core.products import BarrierOption, DigitalOption, EuropeanOption
+
+    products = (
+        EuropeanOption("call", 100.0, 1.0),
+        BarrierOption("call", 100.0, 1.0, 90.0, "down", "out"),
+        DigitalOption("call", 100.0, 1.0),
+    )
+    for scheme in ("euler_full", "qe", "qe_martingale", "exact_variance"):
+        for product in products:
+            mc_greeks(p, 100.0, product, scheme=scheme, steps=2, paths=128)

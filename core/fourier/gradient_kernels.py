@@ -20,7 +20,7 @@ import numpy as np
 from rootvar.core.fourier.cos_kernels import principal_log, principal_sqrt
 from rootvar.core.runtime import njit
 
-__all__ = ["log_cf_gradient_array", "put_coefficients", "surface_sums"]
+__all__ = ["log_cf_gradient_array", "log_cf_gradient_at", "put_coefficients", "surface_sums"]
 
 
 @njit(cache=True, inline="always")
@@ -172,3 +172,8 @@ def surface_sums(omega, times, phase, term_ends, payoff, payoff_starts, quotes, 
             for j in range(6):
                 out[j, q] = acc[s, j]
     return out
+
+
+#: The per-frequency formula of :func:`log_cf_gradient_array`, for the compiled
+#: kernels of other modules (the Greeks' sums in ``greeks_kernels``).
+log_cf_gradient_at = _log_cf_gradient

@@ -110,6 +110,14 @@ class PDEResult(BriefRepr):
         How the value was obtained (parity for knock-ins, knocked state), and
         why a result is "not converged" when refinement cannot see it (a cut
         domain, a price outside its no-arbitrage bounds).
+    theta : float
+        dV/dt at (spot, v0), per year, finest grid: minus the Heston operator
+        applied to the solution (its derivatives read off the grid's spline),
+        which is what the equation says ``u_tau`` is.  NaN for a knock-in
+        (the vanilla part has no grid) and for an already knocked option.
+    level_greeks : tuple of dict
+        Per refinement level, finest first: ``delta``, ``gamma``, ``theta``,
+        ``d_v0`` (:func:`pde_greeks` extrapolates and bounds them as the price).
     s, v, values : ndarray or None
         Finest grid and the solution on it, ``values[j, i]`` at ``(v[j], s[i])``
         (None when no grid was solved for the product itself).
@@ -132,6 +140,8 @@ class PDEResult(BriefRepr):
     seconds: float
     method: str
     note: str
+    theta: float = np.nan
+    level_greeks: tuple = ()
     s: np.ndarray | None = None
     v: np.ndarray | None = None
     values: np.ndarray | None = None
@@ -286,8 +296,24 @@ def _solve_level(problem, params, spot, rate, div_yield, sizes, scheme, damping,
     values = march(ops, u.ravel(), pieces, scheme, damping, knock).reshape(v.size, s.size)
     spline = RectBivariateSpline(v, s, values, kx=3, ky=3)
     v0 = params.v0
-    out = [float(spline.ev(v0, spot, dx=dx, dy=dy)) for dx, dy in ((0, 0), (0, 1), (0, 2), (1, 0))]
+    # value, u_s, u_ss, u_v, then u_sv and u_vv for theta from the equation itself
+    orders = ((0, 0), (0, 1), (0, 2), (1, 0), (1, 1), (2, 0))
+    out = [float(spline.ev(v0, spot, dx=dx, dy=dy)) for dx, dy in orders]
     return out, values, sum(n for _, n in pieces)
+
+
+def _theta(params, spot, rate, div_yield, value, u_s, u_ss, u_v, u_sv, u_vv):
+    """dV/dt at (spot, v0) from the Heston equation: ``-u_tau = -(L u)`` (see ``pde_price``)."""
+    p, v = params, params.v0
+    generator = (
+        0.5 * spot * spot * v * u_ss
+        + p.rho * p.vol_of_vol * spot * v * u_sv
+        + 0.5 * p.vol_of_vol**2 * v * u_vv
+        + (rate - div_yield) * spot * u_s
+        + p.kappa * (p.theta - v) * u_v
+        - rate * value
+    )
+    return -generator
 
 
 def refinement_estimate(prices, spot):
@@ -529,8 +555,18 @@ def pde_price(
                 problem, params, spot, rate, div_yield, level_sizes, scheme, damping, grids
             )
         )
-    (price, delta, gamma, vega), solution, steps = results[0]
+    (price, delta, gamma, vega, _, _), solution, steps = results[0]
     prices = tuple(r[0][0] for r in results)
+    # per level: delta, gamma, theta and the variance sensitivity, finest first
+    level_greeks = tuple(
+        {
+            "delta": r[0][1],
+            "gamma": r[0][2],
+            "theta": _theta(params, spot, rate, div_yield, *r[0]),
+            "d_v0": r[0][3],
+        }
+        for r in results
+    )
     if refine:
         price, error, order, extrapolated = refinement_estimate(prices, spot)
         status = CONVERGED if error <= tol else NOT_CONVERGED
@@ -544,6 +580,10 @@ def pde_price(
         )
         price, delta, gamma, vega = base - price, d_delta - delta, d_gamma - gamma, d_vega - vega
         prices = tuple(base - p for p in prices)
+        # the vanilla's Greeks have no grid levels: the knock-in's levels are the vanilla's
+        # bumped Greeks minus each level's knock-out Greeks; its theta is not formed here
+        vanilla = {"delta": d_delta, "gamma": d_gamma, "theta": np.nan, "d_v0": d_vega}
+        level_greeks = tuple({k: vanilla[k] - g[k] for k in g} for g in level_greeks)
         difference = -difference
         solution = None
     lower, upper = _bounds(product, spot, rate, div_yield)
@@ -575,6 +615,8 @@ def pde_price(
         seconds=time.perf_counter() - start,
         method=method,
         note=note,
+        theta=float(level_greeks[0]["theta"]),
+        level_greeks=level_greeks,
         s=s_fine if solution is not None else None,
         v=v_fine if solution is not None else None,
         values=solution,

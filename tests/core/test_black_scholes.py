@@ -6,7 +6,7 @@ from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from rootvar.core import InputError, bs_price, implied_vol, implied_vol_reason
+from rootvar.core import InputError, bs_greeks, bs_price, implied_vol, implied_vol_reason
 
 
 def test_hull_worked_example():
@@ -109,3 +109,76 @@ def test_bad_input_names_the_argument(kwargs, name):
     args = {"spot": 100.0, "strike": 100.0, "maturity": 1.0, "vol": 0.2, **kwargs}
     with pytest.raises(InputError, match=name):
         bs_price(**args)
+
+
+def test_greeks_hull_worked_examples():
+    # Hull, Options, Futures, and Other Derivatives, "The Greek letters" chapter: the
+    # call with S=49, K=50, r=5%, sigma=20%, T=20 weeks (0.3846 years), no dividend has
+    # delta 0.522, gamma 0.066, theta -4.31 per year, vega 12.1, rho 8.91 (value from
+    # memory, to the digits printed).
+    g = bs_greeks(49.0, 50.0, 0.3846, 0.2, 0.05)
+    assert g["delta"] == pytest.approx(0.522, abs=5e-4)
+    assert g["gamma"] == pytest.approx(0.066, abs=5e-4)
+    assert g["theta"] == pytest.approx(-4.31, abs=5e-3)
+    assert g["vega"] == pytest.approx(12.1, abs=0.05)
+    assert g["rho_rate"] == pytest.approx(8.91, abs=5e-3)
+
+
+@pytest.mark.parametrize("kind", ["call", "put"])
+def test_greeks_are_the_derivatives_of_the_price(kind):
+    # common practice, no source: five-point central differences of bs_price in spot,
+    # maturity, vol, rate and dividend yield (step 1e-3 relative, error O(h^4))
+    s, k, t, v, r, q = 100.0, np.array([70.0, 95.0, 100.0, 130.0]), 1.3, 0.27, 0.04, 0.015
+    g = bs_greeks(s, k, t, v, r, q, kind)
+    args = {"spot": s, "maturity": t, "vol": v, "rate": r, "div_yield": q}
+
+    def diff(name, second=False):
+        h = 1e-3 * max(abs(args[name]), 0.1)
+
+        def price(step):
+            return bs_price(strike=k, kind=kind, **{**args, name: args[name] + step})
+
+        if second:
+            return (
+                -price(2 * h) + 16 * price(h) - 30 * price(0) + 16 * price(-h) - price(-2 * h)
+            ) / (12 * h * h)
+        return (-price(2 * h) + 8 * price(h) - 8 * price(-h) + price(-2 * h)) / (12 * h)
+
+    np.testing.assert_allclose(g["delta"], diff("spot"), rtol=0, atol=1e-9)
+    np.testing.assert_allclose(g["gamma"], diff("spot", second=True), rtol=0, atol=1e-7)
+    np.testing.assert_allclose(g["theta"], -diff("maturity"), rtol=0, atol=1e-7)
+    np.testing.assert_allclose(g["vega"], diff("vol"), rtol=0, atol=1e-7)
+    np.testing.assert_allclose(g["rho_rate"], diff("rate"), rtol=0, atol=1e-7)
+    np.testing.assert_allclose(g["rho_div"], diff("div_yield"), rtol=0, atol=1e-7)
+
+
+def test_greeks_put_call_parity():
+    # d/d(.) of C - P = S e^{-qT} - K e^{-rT} (common practice, no source)
+    s, k, t, r, q = 100.0, np.linspace(40.0, 250.0, 12), 2.0, 0.03, 0.01
+    c, p = bs_greeks(s, k, t, 0.35, r, q, "call"), bs_greeks(s, k, t, 0.35, r, q, "put")
+    np.testing.assert_allclose(c["delta"] - p["delta"], np.exp(-q * t), atol=1e-15)
+    np.testing.assert_allclose(c["gamma"], p["gamma"], rtol=1e-14)
+    np.testing.assert_allclose(c["vega"], p["vega"], rtol=1e-14)
+    parity_theta = q * s * np.exp(-q * t) - r * k * np.exp(-r * t)
+    np.testing.assert_allclose(c["theta"] - p["theta"], parity_theta, atol=1e-12)
+    np.testing.assert_allclose(c["rho_rate"] - p["rho_rate"], t * k * np.exp(-r * t), atol=1e-11)
+    np.testing.assert_allclose(c["rho_div"] - p["rho_div"], -t * s * np.exp(-q * t), atol=1e-11)
+
+
+@pytest.mark.parametrize(
+    "kwargs, name",
+    [
+        ({"spot": 0.0}, "spot"),
+        ({"strike": "abc"}, "strike"),
+        ({"maturity": -1.0}, "maturity"),
+        ({"vol": 0.0}, "vol"),
+        ({"rate": np.inf}, "rate"),
+        ({"div_yield": None}, "div_yield"),
+        ({"kind": "digital"}, "kind"),
+        ({"strike": np.ones(3), "vol": np.ones(2) * 0.2}, "broadcast"),
+    ],
+)
+def test_greeks_bad_input_names_the_argument(kwargs, name):
+    args = {"spot": 100.0, "strike": 100.0, "maturity": 1.0, "vol": 0.2, **kwargs}
+    with pytest.raises(InputError, match=name):
+        bs_greeks(**args)
