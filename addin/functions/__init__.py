@@ -21,10 +21,11 @@ The package is split by the job a cell serves, one module per job:
 step, the exact law), :mod:`.fourier` (Fourier prices and implied
 volatilities), :mod:`.monte_carlo` (Monte Carlo price and check, the step
 study, the Euler worst case), :mod:`.pde` (finite differences),
-:mod:`.calibration` (the fit to quotes) and :mod:`.exotics` (exotic prices
-and checks).  They stand on :mod:`.registry` (the decorator, the registry,
-the caches), :mod:`.arguments` (the checks and ranges several cells share,
-the per-cell work cap) and :mod:`.results` (the shape of a cell's answer).
+:mod:`.calibration` (the fit to quotes), :mod:`.exotics` (exotic prices
+and checks) and :mod:`.greeks` (Greeks by one method, and priced twice).
+They stand on :mod:`.registry` (the decorator, the registry, the caches),
+:mod:`.arguments` (the checks and ranges several cells share, the per-cell
+work cap) and :mod:`.results` (the shape of a cell's answer).
 This module imports the job modules in the registry's order and re-exports
 every cell and public name, so the add-in's module setting stays
 ``rootvar.addin.functions``.
@@ -89,12 +90,29 @@ from rootvar.addin.functions.exotics import (
     ROOTVAR_EXOTIC_PRICE,
     ROOTVAR_EXOTIC_CHECK,
 )
+from rootvar.addin.functions.greeks import (
+    CHECK_COLUMNS,
+    GREEK_LABELS,
+    GREEK_METHODS,
+    GREEK_PRODUCTS,
+    GREEKS_PATHS,
+    GREEKS_SCHEME,
+    NOT_CERTIFIED,
+    ROOTVAR_GREEKS,
+    ROOTVAR_GREEKS_CHECK,
+)
 # isort: on
 
 __all__ = [
     "ASIAN_FIXINGS_PER_YEAR",
+    "CHECK_COLUMNS",
     "EXOTIC_CONTROLS",
     "EXOTIC_PRODUCTS",
+    "GREEKS_PATHS",
+    "GREEKS_SCHEME",
+    "GREEK_LABELS",
+    "GREEK_METHODS",
+    "GREEK_PRODUCTS",
     "KINDS",
     "MAX_NONCENTRALITY",
     "MAX_PATH_STEPS",
@@ -104,6 +122,7 @@ __all__ = [
     "MC_PATHS",
     "MC_STEPS",
     "MIN_MATURITY",
+    "NOT_CERTIFIED",
     "PARAMS_DOC",
     "REGISTRY",
     "ROOTVAR_CALIBRATE",
@@ -118,6 +137,8 @@ __all__ = [
     "ROOTVAR_FELLER_TRADEOFF",
     "ROOTVAR_FOURIER_PRICE",
     "ROOTVAR_FOURIER_VOL",
+    "ROOTVAR_GREEKS",
+    "ROOTVAR_GREEKS_CHECK",
     "ROOTVAR_IMPLIED_VOL",
     "ROOTVAR_MC_CHECK",
     "ROOTVAR_MC_PRICE",

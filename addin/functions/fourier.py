@@ -1,4 +1,4 @@
-"""Cells priced by the certified Fourier (COS) method, and the Black-Scholes implied volatility.
+"""Cells priced by the certified Fourier routes (contour or COS), and Black-Scholes implied vols.
 
 ROOTVAR_FOURIER_PRICE gives a price or a column of prices over a range of
 strikes, ROOTVAR_FOURIER_VOL the same prices quoted as implied volatilities,
@@ -29,7 +29,7 @@ __all__ = ["ROOTVAR_FOURIER_PRICE", "ROOTVAR_FOURIER_VOL", "ROOTVAR_IMPLIED_VOL"
     kind="call or put (empty: call)",
 )
 def ROOTVAR_FOURIER_PRICE(params, spot, strike, maturity, rate=None, div_yield=None, kind=None):
-    """European option price under Heston by the certified COS Fourier method."""
+    """European option price under Heston, certified Fourier (contour; COS for wide strips)."""
     p = to_params("params", params)
     s, ks, t, r, q, kd = market_args(spot, strike, maturity, rate, div_yield, kind)
     return one_or_column(heston_price(p, s, ks, t, r, q, kd), ks.size == 1)

@@ -244,7 +244,8 @@ def build_parameter_check(path: Path) -> None:
 
 
 def build_price_twice(path: Path) -> None:
-    """The structurer's workbook: one vanilla by Fourier and Monte Carlo, and a step study."""
+    """The structurer's workbook: one vanilla by Fourier and Monte Carlo, a step study, the
+    exotics and the Greeks, each priced twice."""
     wb = Workbook()
     ws = wb.active
     ws.title = "Price twice"
@@ -399,6 +400,9 @@ def build_price_twice(path: Path) -> None:
     from rootvar.addin.workbooks.exotics import add_exotics_sheet
 
     add_exotics_sheet(wb)
+    from rootvar.addin.workbooks.greeks import add_greeks_sheet
+
+    add_greeks_sheet(wb)
     path.parent.mkdir(parents=True, exist_ok=True)
     save_deterministic(wb, path)
 

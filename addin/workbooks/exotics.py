@@ -19,13 +19,21 @@ from openpyxl.worksheet.pagebreak import Break
 from rootvar.addin.workbooks.demo_desk import DESK_NAME, demo_models
 from rootvar.addin.workbooks.style import BOLD, INPUT, LINE_HEIGHT, NOTE, axes, heading, print_setup
 
-__all__ = ["BARRIER_LEVELS", "PRODUCTS", "SHEET", "add_exotics_sheet"]
+__all__ = [
+    "BARRIER_LEVELS",
+    "CONTRACT_ROWS",
+    "CONTRACT_TOP",
+    "PRODUCTS",
+    "SHEET",
+    "add_exotics_sheet",
+]
 
 SHEET = "Exotics"
 _MODEL = "CRV-SHP"
 _PRICE = "0.0000"
 
-#: Contract rows (label, ROOTVAR_EXOTIC_* argument) and the three invented contracts.
+#: Contract rows (label, ROOTVAR_EXOTIC_* argument) and the three invented contracts, one
+#: column each from E, the first contract row being CONTRACT_TOP.
 CONTRACT_ROWS = (
     ("product", "product"),
     ("kind", "kind"),
@@ -37,6 +45,7 @@ CONTRACT_ROWS = (
     ("start (years)", "start"),
     ("strike as share of spot at start", "strike_share"),
 )
+CONTRACT_TOP = 5
 PRODUCTS = (
     ("down-and-out call", {"product": "barrier", "kind": "call", "strike": 40.0,
                            "maturity": 1.0, "barrier": 34.0, "direction": "down",
@@ -121,7 +130,7 @@ def add_exotics_sheet(wb, price_twice: str = "Price twice") -> None:
     cols = ("E", "F", "G")
     ws["D4"] = "contract"
     ws["D4"].font = BOLD
-    top = 5
+    top = CONTRACT_TOP
     for i, (label, _) in enumerate(CONTRACT_ROWS):
         ws.cell(row=top + i, column=4, value=label)
     for col, (title, spec) in zip(cols, PRODUCTS, strict=True):

@@ -77,6 +77,13 @@ FORMATS = {
     "count": "#,##0",
     "seed": "0",  # at most 15 digits, all a spreadsheet keeps
     "z": "0.00",
+    # Greeks in their own units: four decimals, gamma (per unit spot squared) six; error
+    # figures that span decades (a certified 1e-9 beside a standard error) scientific
+    "greek": "0.0000",
+    "gamma": "0.000000",
+    "greek_difference": "+0.0000;-0.0000;0.0000",
+    "gamma_difference": "+0.000000;-0.000000;0.000000",
+    "error_estimate": "0.0E+00",
 }
 
 #: Width rule: a column is as wide as its longest header word plus 2, at least
@@ -88,6 +95,17 @@ LINE_HEIGHT = 15.0
 def header_lines(text: str, width: float) -> list[str]:
     """The lines a wrapped header takes in a column of ``width`` characters."""
     return textwrap.wrap(str(text), max(1, int(width) - 1), break_long_words=False) or [""]
+
+
+#: Characters of plain (not bold) text a line holds per unit of column width: the unit is a
+#: digit's width, and running lower-case text is narrower (common practice, no source).
+TEXT_PER_WIDTH = 1.1
+
+
+def text_lines(text: str, width: float) -> int:
+    """Lines a wrapped plain text takes in a column of ``width`` characters."""
+    chars = max(1, int(width * TEXT_PER_WIDTH))
+    return len(textwrap.wrap(str(text), chars, break_long_words=False)) or 1
 
 
 def table_header(ws, row: int, col: int, headers, min_widths=None) -> None:

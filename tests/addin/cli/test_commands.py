@@ -250,3 +250,72 @@ def test_compute_output_follows_the_umask(tmp_path):
         os.umask(old)
     # a temporary file's private 0600 must not survive the move (common practice, no source)
     assert stat.S_IMODE((tmp_path / "c.xlsx").stat().st_mode) == 0o644
+
+
+# ----------------------------------------------------------------- the report's Greeks block
+
+_PARAMS = ["--v0", "0.09", "--kappa", "1.3", "--theta", "0.11", "--vol-of-vol", "0.95",
+           "--rho", "-0.52"]  # fmt: skip
+
+
+def test_report_prints_the_fourier_greeks_of_the_option_after_the_variance_report(capsys):
+    import io
+
+    from rootvar.addin.cli.report import print_report
+    from rootvar.addin.cli.text import CAUTION
+    from rootvar.addin.functions import GREEK_LABELS
+    from rootvar.core import GREEK_NAMES, GREEK_UNITS, HestonParams, __version__, heston_greeks
+
+    argv = ["report", *_PARAMS, "--horizons", "1,5", "--spot", "38.6", "--strike", "40",
+            "--maturity", "1", "--rate", "0.031", "--div-yield", "0.042",
+            "--kind", "put"]  # fmt: skip
+    assert main(argv) == 0
+    out = capsys.readouterr().out
+    # the variance report's lines come first, unchanged
+    p = HestonParams(0.09, 1.3, 0.11, 0.95, -0.52)
+    above = io.StringIO()
+    print_report(p, [1.0, 5.0], 1 / 252, 1e-3, above)
+    assert out.startswith(f"rootvar {__version__} variance report\n" + above.getvalue())
+    assert out.rstrip().endswith(CAUTION)
+    block = out[len(above.getvalue()) :]
+    assert "Greeks of a European put: strike 40, 1 y to expiry, spot 38.6, rate 0.031, " \
+        "dividend yield 0.042" in block  # fmt: skip
+    g = heston_greeks(p, 38.6, 40.0, 1.0, 0.031, 0.042, "put")
+    price = next(x for x in block.splitlines() if x.strip().startswith("price"))
+    assert f"{g.price:.6g}" in price and price.endswith("ccy")
+    for name in GREEK_NAMES:
+        line = next(x for x in block.splitlines() if x.strip().startswith(GREEK_LABELS[name]))
+        assert f"{g.values[name]:.6g}" in line and line.endswith(GREEK_UNITS[name]), line
+    assert "per 1.00 (100 vol points) of volatility" in block
+
+
+def test_report_greeks_default_to_an_at_the_money_call_on_100_for_a_year(capsys):
+    assert main(["report", *_PARAMS]) == 0
+    out = capsys.readouterr().out
+    assert "Greeks of a European call: strike 100, 1 y to expiry, spot 100, rate 0, " \
+        "dividend yield 0" in out  # fmt: skip
+    assert main(["report", *_PARAMS, "--spot", "50"]) == 0
+    assert "call: strike 50, 1 y to expiry, spot 50," in capsys.readouterr().out
+
+
+@pytest.mark.parametrize(
+    "option, fragment",
+    [
+        (["--spot", "-5"], "--spot must be > 0, got -5.0"),
+        (["--spot", "abc"], "--spot must be a number or a fraction such as 1/252, got 'abc'"),
+        (["--strike", "0"], "--strike must be > 0, got 0.0"),
+        (["--strike", "1e-12"], "--strike / --spot must lie in"),
+        (["--maturity", "1000"], "--maturity must lie in [0.001, 100] years, got 1000.0"),
+        (["--maturity", "0"], "--maturity must be > 0"),
+        (["--rate", "2"], "--rate must lie in [-1, 1], got 2.0"),
+        (["--div-yield", "1/0"], "--div-yield must be a number or a fraction"),
+        (["--div-yield", "nan"], "--div-yield must be a number or a fraction"),
+        (["--kind", "straddle"], "--kind must be one of call, put, got 'straddle'"),
+    ],
+)
+def test_report_bad_option_is_one_line_exit_2_naming_it_before_any_output(capsys, option, fragment):
+    assert main(["report", *_PARAMS, *option]) == 2
+    captured = capsys.readouterr()
+    assert captured.out == ""  # refused before the variance report starts
+    err = captured.err.strip()
+    assert len(err.splitlines()) == 1 and fragment in err and "Traceback" not in err, err

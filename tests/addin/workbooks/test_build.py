@@ -156,6 +156,14 @@ def _template(name):
         (PRICE_TWICE, "Step study", ["G8"], "bp"),
         (PRICE_TWICE, "Step study", ["J8"], "seconds"),
         (PRICE_TWICE, "Step study", ["C8"], "step_years"),
+        # Greeks twice: the call's Fourier table (rows 13-24), its check (28-39), the barrier's
+        # (44-55); price row first, gamma the third
+        (PRICE_TWICE, "Greeks twice", ["F13", "F14", "F16", "F24", "H28", "K29", "L55"], "greek"),
+        (PRICE_TWICE, "Greeks twice", ["F15", "F30", "G30", "H46", "L46"], "gamma"),
+        (PRICE_TWICE, "Greeks twice", ["G13", "G24", "I28", "I55"], "error_estimate"),
+        (PRICE_TWICE, "Greeks twice", ["J28", "J55"], "greek_difference"),
+        (PRICE_TWICE, "Greeks twice", ["J30", "J46"], "gamma_difference"),
+        (PRICE_TWICE, "Greeks twice", ["B13", "B22"], "price"),
         (CONTROL, "Settings", ["B5"], "probability"),
         (CONTROL, "Settings", ["B7", "B8"], "count"),
         (CONTROL, "Settings", ["B9"], "seed"),
@@ -179,6 +187,8 @@ def test_formats_show_numbers_as_the_trade_reads_them():
     [
         (PARAMETER_CHECK, "Desk models", 7, 1, None),
         (PRICE_TWICE, "Step study", 7, 1, None),
+        (PRICE_TWICE, "Greeks twice", 27, 4, None),
+        (PRICE_TWICE, "Greeks twice", 43, 4, None),
         (CONTROL, "Models", 1, 1, None),
     ],
 )
@@ -218,6 +228,7 @@ def test_the_variance_table_headers_fit(computed):
         (PARAMETER_CHECK, "Variance law", "$14:$14"),
         (PRICE_TWICE, "Price twice", None),
         (PRICE_TWICE, "Step study", "$7:$7"),
+        (PRICE_TWICE, "Greeks twice", "$1:$2"),
         (CONTROL, "Settings", None),
         (CONTROL, "Models", "$1:$1"),
     ],
@@ -357,3 +368,121 @@ def test_exotics_sheet_looks_right():
     for chart in ws._charts:
         assert chart.x_axis.delete is False and chart.y_axis.delete is False
         assert chart.x_axis.title is not None and chart.y_axis.title is not None
+
+
+# ------------------------------------------------------------------------------ Greeks sheet
+
+
+def _greeks_inputs():
+    m = next(m for m in demo_models() if m.model_id == "CRV-SHP")
+    return m, (m.params, m.spot)
+
+
+def test_greeks_sheet_agrees_with_the_core(computed):
+    # the tables are the core's for the sheet's inputs (deterministic seed): the call's
+    # certified Fourier Greeks, its Monte Carlo check against them, the barrier's against
+    # the PDE; a saved workbook keeps 15 significant digits
+    from rootvar.addin.functions import GREEK_LABELS
+    from rootvar.addin.workbooks.greeks import CHECK_HEADERS, GREEKS_HEADERS, ROWS, SHEET, TABLES
+    from rootvar.core import BarrierOption, EuropeanOption, compare_greeks, heston_greeks
+
+    ws = computed[PRICE_TWICE][1][SHEET]
+    m, (p, spot) = _greeks_inputs()
+    same = {"rel": 1e-14, "abs": 1e-300}
+    (_, top, _), (_, vanilla, _), (_, barrier, _) = TABLES
+    assert [ws.cell(row=top, column=4 + j).value for j in range(5)] == list(GREEKS_HEADERS)
+    g = heston_greeks(p, spot, 40.0, 1.0, m.rate, m.div_yield, "call")
+    for i, name in enumerate(ROWS, start=1):
+        assert ws.cell(row=top + i, column=4).value == GREEK_LABELS[name]
+        value, error = (g.price, g.price_error) if name == "price" else (
+            g.values[name], g.errors[name])  # fmt: skip
+        assert ws.cell(row=top + i, column=6).value == pytest.approx(value, **same)
+        assert ws.cell(row=top + i, column=7).value == pytest.approx(error, **same)
+    assert ws.cell(row=top + len(ROWS) + 1, column=4).value is None  # no notes row here
+    products = (EuropeanOption("call", 40.0, 1.0),
+                BarrierOption("call", 40.0, 1.0, 34.0, "down", "out"))  # fmt: skip
+    for header, product in zip((vanilla, barrier), products, strict=True):
+        row = [ws.cell(row=header, column=4 + j).value for j in range(len(CHECK_HEADERS))]
+        assert row == list(CHECK_HEADERS)
+        c = compare_greeks(p, spot, product, m.rate, m.div_yield, seed=20240601)
+        for i, name in enumerate(ROWS, start=1):
+            if name not in c.table.index:
+                assert ws.cell(row=header + i, column=13).value == "not compared"
+                continue
+            t = c.table.loc[name]
+            keys = ("monte_carlo", "mc_std_error", "reference", "reference_error", "difference",
+                    "band", "tolerance")  # fmt: skip
+            for j, key in enumerate(keys):
+                got = ws.cell(row=header + i, column=6 + j).value
+                assert got == pytest.approx(float(t[key]), **same), (name, key)
+            assert ws.cell(row=header + i, column=13).value == t["verdict"]
+        overall = header + len(ROWS) + 1
+        assert ws.cell(row=overall, column=4).value == "overall"
+        assert ws.cell(row=overall, column=13).value == c.verdict
+        method = {"fourier": "Fourier (COS)", "pde": "PDE (finite differences)"}
+        assert ws.cell(row=overall, column=8).value == method[c.reference_method]
+    # the shipped call decides its delta, gamma and rhos at 100,000 paths
+    verdicts = {ws.cell(row=vanilla + i, column=4).value: ws.cell(row=vanilla + i, column=13).value
+                for i in range(1, len(ROWS) + 1)}  # fmt: skip
+    for label in ("delta", "gamma", "rho (rate)", "rho (dividend yield)"):
+        assert verdicts[label] == "consistent", verdicts
+
+
+def test_greeks_sheet_shows_no_raw_number_and_no_nan(computed):
+    from rootvar.addin.workbooks.greeks import SHEET
+
+    ws = computed[PRICE_TWICE][1][SHEET]
+    numbers = 0
+    for row in ws.iter_rows():
+        for cell in row:
+            if isinstance(cell.value, float):
+                numbers += 1
+                assert cell.number_format != "General", cell.coordinate
+            assert not (isinstance(cell.value, str) and cell.value.lower() == "nan")
+    assert numbers > 100
+
+
+def test_greeks_sheet_wrapped_texts_fit_their_rows(computed):
+    # the Monte Carlo estimators and the notes come from the core; the builder sized the
+    # rows for them (ESTIMATOR_LINES), so a longer text shows here rather than clipped
+    from rootvar.addin.workbooks.greeks import CHECK_HEADERS, ROWS, SHEET, TABLES
+    from rootvar.addin.workbooks.style import text_lines
+
+    ws = computed[PRICE_TWICE][1][SHEET]
+    col = 4 + len(CHECK_HEADERS) - 1
+    width = ws.column_dimensions[get_column_letter(col)].width
+    for _, header, what in TABLES:
+        if what != "check":
+            continue
+        for r in range(header + 1, header + len(ROWS) + 2):
+            cell = ws.cell(row=r, column=col)
+            assert cell.alignment.wrap_text
+            height = ws.row_dimensions[r].height or LINE_HEIGHT
+            lines = text_lines(cell.value, width)
+            assert lines * LINE_HEIGHT <= height, (r, cell.value, lines, height)
+
+
+def test_greeks_sheet_looks_right():
+    from rootvar.addin.cli.text import CAUTION
+    from rootvar.addin.workbooks.greeks import SHEET, TABLES
+    from rootvar.addin.workbooks.style import BREACH
+
+    ws = _template(PRICE_TWICE)[SHEET]
+    assert ws["A2"].value == CAUTION
+    assert [s.title for s in _template(PRICE_TWICE).worksheets][-2:] == ["Exotics", SHEET]
+    # rose only where it means something: a biased verdict, in the verdict columns
+    rules = {str(rng.sqref): rng.rules for rng in ws.conditional_formatting}
+    expected = {f"M{h + 1}:M{h + 13}": f'M{h + 1}="biased"' for _, h, w in TABLES if w == "check"}
+    assert set(rules) == set(expected)
+    for ref, formula in expected.items():
+        (rule,) = rules[ref]
+        assert rule.formula == [formula] and rule.dxf.fill.fgColor.rgb.endswith(
+            BREACH.fgColor.rgb[-6:]
+        )
+    assert "Shaded rose: a verdict of biased" in " ".join(
+        str(ws.cell(row=r, column=7).value) for r in range(4, 9)
+    )
+    # every table's formula fills exactly its table: header, price, Greeks (and overall)
+    assert {str(f.ref) for f in (ws[f"D{h}"].value for _, h, _ in TABLES)} == {
+        "D12:H24", "D27:N40", "D43:N56"}  # fmt: skip
+    assert [b.id for b in ws.row_breaks.brk] == [TABLES[2][1] - 2]
