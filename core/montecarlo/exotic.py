@@ -272,6 +272,10 @@ def _payoff_spec(product, spot, rate):
     return pay
 
 
+#: The ``pay`` array of a product, for other kernels on exotic_block's paths (the Greeks').
+payoff_spec = _payoff_spec
+
+
 def _knocked(params, spot, product, rate, div_yield, common, start):
     """Exact value of a continuous barrier whose spot is already on the knock side (as the PDE)."""
     side = "at or below" if product.direction == "down" else "at or above"

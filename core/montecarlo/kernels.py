@@ -278,6 +278,10 @@ def _ndtr(a):
     return 1.0 - y if x > 0.0 else y
 
 
+#: The kernels' normal cdf, for other kernels that follow their arithmetic (the Greeks').
+normal_cdf = _ndtr
+
+
 @njit(cache=True, nogil=True)
 def price_block(gen, size, anti, kind, fmap, c, v0, steps, market, rho, strikes, conditional):
     """Payoff sums of one block of paths; runs without the GIL.
