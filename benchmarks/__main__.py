@@ -16,6 +16,7 @@ ALL = [
     "fourier",
     "contour",
     "greeks",
+    "mc_greeks",
     "monte_carlo",
     "kernels",
     "refresh",
