@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 from rootvar.core.validation import InputError, as_float_array
 
-__all__ = ["HestonParams"]
+__all__ = ["HestonParams", "as_params"]
 
 
 @dataclass(frozen=True)
@@ -66,3 +66,13 @@ class HestonParams:
     def feller_ratio(self) -> float:
         """``2 kappa theta / vol_of_vol**2``; the Feller condition holds when >= 1."""
         return 2.0 * self.kappa * self.theta / self.vol_of_vol**2
+
+
+def as_params(params) -> HestonParams:
+    """``params`` itself when it is a :class:`HestonParams`; otherwise an :class:`InputError`.
+
+    The one check every public entry makes of its parameter set, with one message.
+    """
+    if not isinstance(params, HestonParams):
+        raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
+    return params

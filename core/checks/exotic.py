@@ -43,7 +43,7 @@ from rootvar.core.fourier.series import RANGE_TOL
 from rootvar.core.montecarlo.european import DEFAULT_SEED
 from rootvar.core.montecarlo.exotic import ExoticMCResult, mc_exotic
 from rootvar.core.montecarlo.schemes import SCHEMES
-from rootvar.core.params import HestonParams
+from rootvar.core.params import as_params
 from rootvar.core.pde.solver import CONVERGED, DEFAULT_GRID, KNOCKED, pde_price
 from rootvar.core.products import (
     AsianOption,
@@ -489,8 +489,7 @@ def compare_exotic(
     Broadie, M. & Kaya, O. (2006). Exact simulation of stochastic volatility
     and other affine jump diffusion processes. Operations Research 54(2).
     """
-    if not isinstance(params, HestonParams):
-        raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
+    as_params(params)
     if not isinstance(product, _PRODUCTS):
         names = ", ".join(p.__name__ for p in _PRODUCTS)
         raise InputError(f"product must be one of {names}, got {type(product).__name__}")

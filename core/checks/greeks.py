@@ -21,7 +21,7 @@ from rootvar.core.fourier.greeks import heston_greeks
 from rootvar.core.greeks import GREEK_NAMES, GREEK_UNITS, Greeks
 from rootvar.core.montecarlo.european import DEFAULT_SEED
 from rootvar.core.montecarlo.greeks import DEFAULT_GREEKS_SCHEME, mc_greeks
-from rootvar.core.params import HestonParams
+from rootvar.core.params import as_params
 from rootvar.core.pde.greeks import pde_greeks
 from rootvar.core.products import BarrierOption, DigitalOption, EuropeanOption
 from rootvar.core.validation import InputError, as_float
@@ -153,8 +153,7 @@ def compare_greeks(
     Broadie, M. & Glasserman, P. (1996). Estimating security price derivatives
     using simulation. Management Science 42(2), 269-285.
     """
-    if not isinstance(params, HestonParams):
-        raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
+    as_params(params)
     spot = as_float("spot", spot, ">0")
     z = as_float("z", z, ">0")
     tol = default_greek_tolerances(spot)

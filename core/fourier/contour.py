@@ -37,7 +37,7 @@ from rootvar.core.fourier.contour_kernels import (
     contour_cells,
     contour_strip,
 )
-from rootvar.core.params import HestonParams
+from rootvar.core.params import as_params
 from rootvar.core.validation import (
     InputError,
     as_float,
@@ -469,8 +469,7 @@ def contour_prices(
     >>> round(price, 8), bool(details.certified[0])
     (5.78515543, True)
     """
-    if not isinstance(params, HestonParams):
-        raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
+    as_params(params)
     check_choice("kind", kind, _KINDS)
     check_choice("mode", mode, _MODES)
     spot = as_float("spot", spot, ">0")

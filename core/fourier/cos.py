@@ -53,10 +53,9 @@ from rootvar.core.fourier.series import (
     cf_cutoffs,
     law_facts,
 )
-from rootvar.core.params import HestonParams
+from rootvar.core.params import HestonParams, as_params
 from rootvar.core.runtime import notice_if_cold
 from rootvar.core.validation import (
-    InputError,
     as_float,
     as_float_array,
     broadcast,
@@ -147,8 +146,7 @@ class FourierDetails(BriefRepr):
 
 
 def _validated(params, spot, strike, maturity, rate, div_yield, kind, method):
-    if not isinstance(params, HestonParams):
-        raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
+    as_params(params)
     check_choice("kind", kind, _KINDS)
     check_choice("method", method, _METHODS)
     spot = as_float("spot", spot, ">0")

@@ -35,7 +35,7 @@ from scipy import integrate
 
 from rootvar.core.fourier.joint_cf import joint_log_mgf
 from rootvar.core.fourier.series import MAX_TERMS, RANGE_TOL, SERIES_TOL, CosSeries
-from rootvar.core.params import HestonParams
+from rootvar.core.params import as_params
 from rootvar.core.products import AsianOption, ForwardStartOption
 from rootvar.core.validation import InputError, as_float
 
@@ -50,8 +50,7 @@ class FourierConvergenceError(ArithmeticError):
 
 
 def _common(params, spot, rate, div_yield):
-    if not isinstance(params, HestonParams):
-        raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
+    as_params(params)
     return as_float("spot", spot, ">0"), as_float("rate", rate), as_float("div_yield", div_yield)
 
 

@@ -23,7 +23,7 @@ from rootvar.core.fourier.gradient_kernels import (
     put_coefficients,
     surface_sums,
 )
-from rootvar.core.params import HestonParams
+from rootvar.core.params import HestonParams, as_params
 from rootvar.core.runtime import notice_if_cold
 from rootvar.core.validation import InputError, as_float_array, broadcast, check_choice
 
@@ -305,8 +305,7 @@ def heston_price_gradient(
     options based on Fourier-cosine series expansions. SIAM J. Sci. Comput.
     31(2), 826-848.
     """
-    if not isinstance(params, HestonParams):
-        raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
+    as_params(params)
     check_choice("kind", kind, ("call", "put"))
     spot = float(as_float_array("spot", spot, ">0"))
     strike, maturity = broadcast(

@@ -45,7 +45,7 @@ from rootvar.core.fourier.series import (
     law_facts,
 )
 from rootvar.core.greeks import GREEK_NAMES, Greeks, desk_vega
-from rootvar.core.params import HestonParams
+from rootvar.core.params import as_params
 from rootvar.core.runtime import notice_if_cold
 from rootvar.core.validation import InputError, as_float, as_float_array, check_choice
 
@@ -114,8 +114,7 @@ def _tolerances(spot):
 
 
 def _validated(params, spot, rate, div_yield, kind, maturity):
-    if not isinstance(params, HestonParams):
-        raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
+    as_params(params)
     check_choice("kind", kind, _KINDS)
     return (
         as_float("spot", spot, ">0"),

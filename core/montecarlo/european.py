@@ -29,7 +29,7 @@ import numpy as np
 from rootvar.core.brief_repr import BriefRepr
 from rootvar.core.montecarlo.kernels import POS, price_block
 from rootvar.core.montecarlo.schemes import SCHEMES, kernel_constants
-from rootvar.core.params import HestonParams
+from rootvar.core.params import HestonParams, as_params
 from rootvar.core.runtime import notice_if_cold, thread_pool
 from rootvar.core.validation import InputError, as_float_array, as_positive_int, check_choice
 from rootvar.core.variance.euler import euler_negative_probability
@@ -267,8 +267,7 @@ def mc_price(
     Romano, M. & Touzi, N. (1997). Contingent claims and market completeness
     in a stochastic volatility model. Mathematical Finance 7(4), 399-412.
     """
-    if not isinstance(params, HestonParams):
-        raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
+    as_params(params)
     check_choice("kind", kind, ("call", "put"))
     check_choice("scheme", scheme, tuple(SCHEMES))
     steps = as_positive_int("steps", steps)

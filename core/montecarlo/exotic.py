@@ -42,7 +42,7 @@ from rootvar.core.montecarlo.european import (
 )
 from rootvar.core.montecarlo.exotic_kernels import exotic_block
 from rootvar.core.montecarlo.schemes import SCHEMES, kernel_constants
-from rootvar.core.params import HestonParams
+from rootvar.core.params import as_params
 from rootvar.core.products import (
     AsianOption,
     BarrierOption,
@@ -469,8 +469,7 @@ def mc_exotic(
     Lord, R., Koekkoek, R. & van Dijk, D. (2010). Quantitative Finance 10(2).
     """
     started = time.perf_counter()
-    if not isinstance(params, HestonParams):
-        raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
+    as_params(params)
     if not isinstance(product, _PRODUCTS):
         names = ", ".join(t.__name__ for t in _PRODUCTS)
         raise InputError(f"product must be one of {names}, got {type(product).__name__}")

@@ -70,7 +70,7 @@ from rootvar.core.montecarlo.exotic import (
 from rootvar.core.montecarlo.greeks_kernels import european_greeks_block, exotic_greeks_block
 from rootvar.core.montecarlo.kernels import EULER, QE_MARTINGALE
 from rootvar.core.montecarlo.schemes import SCHEMES, kernel_constants
-from rootvar.core.params import HestonParams
+from rootvar.core.params import as_params
 from rootvar.core.products import KINDS, BarrierOption, DigitalOption, EuropeanOption
 from rootvar.core.runtime import notice_if_cold, thread_pool
 from rootvar.core.validation import InputError, as_float, as_positive_int, check_choice
@@ -551,8 +551,7 @@ def mc_greeks(
     >>> 0.5 < g["delta"] < 0.7 and g.errors["delta"] < 0.01
     True
     """
-    if not isinstance(params, HestonParams):
-        raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
+    as_params(params)
     if abs(params.rho) >= 1.0:
         raise InputError(
             f"rho must lie in (-1, 1) for Monte Carlo Greeks (their estimators need log-price "

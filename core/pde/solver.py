@@ -18,7 +18,7 @@ from scipy.interpolate import RectBivariateSpline
 from rootvar.core.brief_repr import BriefRepr
 from rootvar.core.fourier.characteristic import log_return_cumulants
 from rootvar.core.fourier.cos import heston_price
-from rootvar.core.params import HestonParams
+from rootvar.core.params import as_params
 from rootvar.core.pde.adi import SCHEMES, march
 from rootvar.core.pde.grid import build_operators, spot_grid, variance_grid
 from rootvar.core.products import BarrierOption, DigitalOption, EuropeanOption
@@ -356,8 +356,7 @@ def _fourier_vanilla(params, spot, vanilla, rate, div_yield):
 
 
 def _validated(params, spot, product, rate, div_yield, grid, scheme, damping, tolerance):
-    if not isinstance(params, HestonParams):
-        raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
+    as_params(params)
     if not isinstance(product, (EuropeanOption, BarrierOption, DigitalOption)):
         raise InputError(
             "product must be a EuropeanOption, BarrierOption or DigitalOption, "

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from rootvar.core.params import HestonParams
+from rootvar.core.params import HestonParams, as_params
 from rootvar.core.validation import InputError, as_float_array
 from rootvar.core.variance.cir_law import TINY_VARIANCE, cir_transition
 from rootvar.core.variance.euler import (
@@ -78,8 +78,7 @@ def variance_report(
     lives at intermediate levels; the worst case, its level and the mass up
     to that level say where and how often.
     """
-    if not isinstance(params, HestonParams):
-        raise InputError(f"params must be a HestonParams, got {type(params).__name__}")
+    as_params(params)
     horizons = as_float_array("horizons", horizons, ">0").reshape(-1)
     if horizons.size == 0:
         raise InputError("horizons must hold at least one horizon, got an empty list")
