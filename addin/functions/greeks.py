@@ -296,15 +296,17 @@ CHECK_COLUMNS = (
     "band half-width",
     "tolerance",
     "verdict",
+    "paths to settle",
     "Monte Carlo estimator",
 )
 
 
 @sheet_function(
     "table: a header row (Greek, unit, Monte Carlo, std error, reference, reference error, "
-    "difference, band half-width, tolerance, verdict, Monte Carlo estimator), the price and "
-    "one row per Greek ('not compared' where only one method gives it), then an 'overall' "
-    "row naming the reference method, the overall verdict and the notes",
+    "difference, band half-width, tolerance, verdict, paths to settle, Monte Carlo "
+    "estimator), the price and one row per Greek ('not compared' where only one method "
+    "gives it), then an 'overall' row naming the reference method, the overall verdict "
+    "and the notes",
     **_CHECK_DOCS,
 )
 def ROOTVAR_GREEKS_CHECK(
@@ -318,10 +320,12 @@ def ROOTVAR_GREEKS_CHECK(
     One verdict per Greek in its own unit: "consistent" when the difference with
     its band (z standard errors plus the reference's error) lies within the
     Greek's tolerance, "biased" when wholly outside, "undecided" otherwise (more
-    paths would decide).  Tolerances: price 0.1% of the spot, delta 0.005, gamma
-    0.05 / spot, theta 0.2% of the spot a year, vega 0.5% of the spot per unit
-    volatility, every other Greek 1% of the spot per unit of its parameter.  The
-    product arguments are ROOTVAR_EXOTIC_CHECK's, so a contract column serves both.
+    paths would decide: "paths to settle" gives the count at which a rerun decides in
+    90% of cases, "no count" where the reference's own error fills the tolerance).
+    Tolerances: price 0.1% of the spot, delta 0.005, gamma 0.05 / spot, theta 0.2%
+    of the spot a year, vega 0.5% of the spot per unit volatility, every other Greek
+    1% of the spot per unit of its parameter.  The product arguments are
+    ROOTVAR_EXOTIC_CHECK's, so a contract column serves both.
     """
     p = to_params("params", params)
     s = to_number("spot", spot, ">0")
@@ -353,6 +357,7 @@ def ROOTVAR_GREEKS_CHECK(
                     finite(float(row["band"])),
                     finite(float(row["tolerance"])),
                     str(row["verdict"]),
+                    _settle_text(int(row["paths_to_settle"])),
                     str(row["mc_estimator"]) or _PRICE_HOW["monte_carlo"],
                 ]
             )
@@ -370,11 +375,23 @@ def ROOTVAR_GREEKS_CHECK(
                 "",
                 "",
                 "not compared",
+                "",
                 mc.estimators.get(name, "") if in_mc else _noted(mc.notes, name) or "",
             ]
         )
     shown = (": given by ", "not given: ", "a method gave no certified figure")
     notes = [n for n in c.notes if not any(part in n for part in shown)]
     overall = ["overall", "", "", "", _METHOD_WORDS[c.reference_method], "", "", "", ""]
-    rows.append([*overall, c.verdict, "; ".join(notes)])
+    rows.append([*overall, c.verdict, "", "; ".join(notes)])
     return rows
+
+
+def _settle_text(settle: int):
+    """Paths to settle as the table shows them: blank once decided, words when no count can."""
+    if settle == 0:
+        return ""
+    return NO_COUNT_DECIDES if settle < 0 else settle
+
+
+#: Shown where the reference's own error fills the tolerance: more paths cannot decide.
+NO_COUNT_DECIDES = "no count"

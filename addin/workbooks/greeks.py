@@ -74,7 +74,7 @@ ESTIMATOR_LINES = (
      "d_theta": 2, "d_vol_of_vol": 2, "overall": 5},
 )  # fmt: skip
 _FIRST_COL = 4  # column D
-_WIDTHS = {0: 20, 1: 27, 2: 11, 3: 10, 4: 11, 5: 11, 6: 11, 7: 11, 8: 11, 9: 13, 10: 66}
+_WIDTHS = {0: 20, 1: 27, 2: 11, 3: 10, 4: 11, 5: 11, 6: 11, 7: 11, 8: 11, 9: 13, 10: 11, 11: 66}
 _TEXT_COLUMNS = ("Greek", "unit", "verdict", "estimator", "Monte Carlo estimator")
 #: The contract rows of the exotics sheet the barrier's Greeks read, and their formats.
 _BARRIER_ARGS = ("kind", "strike", "maturity", "barrier", "direction", "knock")
@@ -90,6 +90,9 @@ _NOTES = (
     "Greek 1% of the spot.",
     "Vega moves sqrt(v0) and sqrt(theta) together, per 1.00 of volatility; theta is dV/dt "
     "per year.",
+    "Paths to settle: a rerun at that count decides an undecided Greek in 90% of cases; "
+    "no count: the",
+    "reference's own error fills the tolerance, so more paths cannot decide.",
 )
 
 
@@ -102,6 +105,8 @@ def _kind(name: str, column: str) -> str:
     gamma = name == "gamma"
     if column in ("error estimate", "reference error"):
         return "error_estimate"
+    if column == "paths to settle":
+        return "count"
     if column == "difference":
         return "gamma_difference" if gamma else "greek_difference"
     return "gamma" if gamma else "greek"

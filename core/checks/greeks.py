@@ -15,7 +15,7 @@ from dataclasses import dataclass
 import pandas as pd
 
 from rootvar.core.brief_repr import BriefRepr
-from rootvar.core.checks.exotic import band_verdict
+from rootvar.core.checks.exotic import band_verdict, deciding_paths
 from rootvar.core.checks.vanilla import BIASED, CONSISTENT, UNDECIDED
 from rootvar.core.fourier.greeks import heston_greeks
 from rootvar.core.greeks import GREEK_NAMES, GREEK_UNITS, Greeks
@@ -79,7 +79,11 @@ class GreeksComparison(BriefRepr):
         name, with columns ``unit``, ``monte_carlo``, ``mc_std_error``,
         ``reference``, ``reference_error``, ``difference`` (Monte Carlo minus
         reference), ``band`` (half-width ``z sqrt(se_mc^2 + se_ref^2) + bound``),
-        ``tolerance``, ``verdict`` and ``mc_estimator``.
+        ``tolerance``, ``verdict``, ``paths_to_settle`` (for an "undecided" Greek,
+        the paths at which a rerun decides in 90% of cases,
+        :func:`rootvar.core.checks.exotic.deciding_paths`; 0 where decided, -1
+        where the reference's own error leaves no room or a figure is missing)
+        and ``mc_estimator``.
     verdict : str
         The worst row: "biased" before "undecided" before "consistent".
     reference_method : str
@@ -195,11 +199,18 @@ def compare_greeks(
             notes.append(f"{name}: given by {given} only, not compared")
     for name, m, se, f, err, how in pairs:
         d = m - f
+        settle = -1
         if not all(math.isfinite(x) for x in (m, se, f, err)):
             verdict, band = UNDECIDED, math.nan
             notes.append(f"{name}: a method gave no certified figure; undecided")
         else:
             verdict, _, band = band_verdict(d, se, 0.0, err, tol[name], z)
+            # the reference's error does not shrink with the paths: -1 when it alone fills
+            # the tolerance, so only the second method can decide
+            if verdict == UNDECIDED:
+                settle = deciding_paths(paths, se, 0.0, err, tol[name], z)
+            else:
+                settle = 0
         rows[name] = {
             "unit": "ccy" if name == "price" else GREEK_UNITS[name],
             "monte_carlo": m,
@@ -210,6 +221,7 @@ def compare_greeks(
             "band": band,
             "tolerance": tol[name],
             "verdict": verdict,
+            "paths_to_settle": int(settle),
             "mc_estimator": how,
         }
     table = pd.DataFrame.from_dict(rows, orient="index")

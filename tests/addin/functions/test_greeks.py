@@ -37,7 +37,7 @@ P = HestonParams(0.09, 1.3, 0.11, 0.95, -0.52)
 MARKET = (38.6, 40.0, 1.0, 0.031, 0.042, "call")  # spot, strike, maturity, rate, yield, kind
 ROWS = ["price", *GREEK_NAMES]
 CHECK_HEADER = ["Greek", "unit", "Monte Carlo", "std error", "reference", "reference error",
-                "difference", "band half-width", "tolerance", "verdict",
+                "difference", "band half-width", "tolerance", "verdict", "paths to settle",
                 "Monte Carlo estimator"]  # fmt: skip
 
 
@@ -165,9 +165,12 @@ def test_greeks_check_of_a_european_is_the_core_comparison():
         assert row[2:10] == [t["monte_carlo"], t["mc_std_error"], t["reference"],
                              t["reference_error"], t["difference"], t["band"], t["tolerance"],
                              t["verdict"]]  # fmt: skip
+        settle = int(t["paths_to_settle"])
+        assert row[10] == ("" if settle == 0 else "no count" if settle < 0 else settle)
+        assert (settle == 0) == (t["verdict"] != "undecided")
     overall = rows[-1]
     assert overall[0] == "overall" and overall[4] == "Fourier (COS)"
-    assert overall[9] == c.verdict and "mc_price(" in overall[10]
+    assert overall[9] == c.verdict and overall[10] == "" and "mc_price(" in overall[11]
     _no_raw_nan(rows)
 
 
@@ -198,7 +201,7 @@ def test_greeks_check_of_a_digital_and_of_a_knocked_barrier():
     knocked = call("ROOTVAR_GREEKS_CHECK", *_check_args(
         "barrier", strike=40.0, maturity=1.0, barrier=40.0, direction="down",
         paths=10_000))  # fmt: skip
-    assert knocked[1][2] == 0.0 and "already knocked" in knocked[-1][10]
+    assert knocked[1][2] == 0.0 and "already knocked" in knocked[-1][11]
     _no_raw_nan(digital + knocked)
 
 

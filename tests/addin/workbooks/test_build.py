@@ -484,5 +484,5 @@ def test_greeks_sheet_looks_right():
     )
     # every table's formula fills exactly its table: header, price, Greeks (and overall)
     assert {str(f.ref) for f in (ws[f"D{h}"].value for _, h, _ in TABLES)} == {
-        "D12:H24", "D27:N40", "D43:N56"}  # fmt: skip
+        "D12:H24", "D27:O40", "D43:O56"}  # fmt: skip
     assert [b.id for b in ws.row_breaks.brk] == [TABLES[2][1] - 2]

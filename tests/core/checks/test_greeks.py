@@ -75,3 +75,48 @@ def test_bad_input_names_the_argument(kwargs, named):
     args.update(kwargs)
     with pytest.raises(InputError, match=named.replace("[", r"\[").replace("]", r"\]")):
         compare_greeks(**args, paths=1_000)
+
+
+def test_paths_to_settle_plan_a_rerun_that_decides():
+    """An undecided Greek's paths to settle give a rerun whose band fits the tolerance.
+
+    The plan is the price check's (``deciding_paths``: noise per path from this run,
+    the reference's error held fixed).  Delta's tolerance is set to twice its
+    standard error at 20,000 paths, so the band of 3 standard errors straddles it; at 64
+    steps a year the Euler bias of delta is a tenth of that tolerance (at 16 it is half,
+    and a rerun rightly stays undecided: a bias near the tolerance never settles).
+    """
+    from rootvar.core.checks.exotic import deciding_paths
+
+    option = EuropeanOption("call", 100.0, 1.0)
+    first = compare_greeks(P, 100.0, option, 0.03, 0.01, paths=20_000, steps=64)
+    se = first.table.loc["delta", "mc_std_error"]
+    err = first.table.loc["delta", "reference_error"]
+    tol = 2.0 * se + err
+    c = compare_greeks(P, 100.0, option, 0.03, 0.01, paths=20_000, steps=64,
+                       tolerances={"delta": tol})  # fmt: skip
+    row = c.table.loc["delta"]
+    assert row["verdict"] == "undecided"
+    settle = int(row["paths_to_settle"])
+    assert settle == deciding_paths(20_000, se, 0.0, err, tol, 3.0) > 20_000
+    # decided rows carry 0
+    assert all(
+        int(r["paths_to_settle"]) == 0 for _, r in c.table.iterrows() if r["verdict"] != "undecided"
+    )
+    rerun = compare_greeks(P, 100.0, option, 0.03, 0.01, paths=settle, steps=64,
+                           tolerances={"delta": tol})  # fmt: skip
+    again = rerun.table.loc["delta"]
+    # the noise per path is a property of the estimator: it shrinks as 1 / sqrt(paths)
+    assert again["mc_std_error"] == pytest.approx(se * math.sqrt(20_000 / settle), rel=0.05)
+    assert again["verdict"] == "consistent"  # a correct engine, decided (90% of reruns)
+    assert int(again["paths_to_settle"]) == 0
+
+
+def test_paths_to_settle_say_when_the_reference_error_fills_the_tolerance():
+    option = EuropeanOption("call", 100.0, 1.0)
+    c = compare_greeks(P, 100.0, option, paths=20_000, steps=16, tolerances={"d_v0": 1e-300})
+    row = c.table.loc["d_v0"]
+    if row["verdict"] == "undecided":  # the certified error 1e-8 x spot alone exceeds 1e-300
+        assert int(row["paths_to_settle"]) == -1
+    else:
+        assert row["verdict"] == "biased" and int(row["paths_to_settle"]) == 0
