@@ -13,7 +13,12 @@ from __future__ import annotations
 import time
 
 from rootvar.core import runtime
-from rootvar.core.fourier import contour_kernels, cos_kernels, gradient_kernels
+from rootvar.core.fourier import (
+    contour_greeks_kernels,
+    contour_kernels,
+    cos_kernels,
+    gradient_kernels,
+)
 from rootvar.core.montecarlo import exotic_kernels as mc_exotic_kernels
 from rootvar.core.montecarlo import greeks_kernels as mc_greeks_kernels
 from rootvar.core.montecarlo import kernels as mc_kernels
@@ -37,6 +42,7 @@ KERNELS = (
     cos_kernels.cos_puts,
     contour_kernels.contour_cells,
     contour_kernels.contour_strip,
+    contour_greeks_kernels.contour_greeks,
 )
 
 
@@ -55,6 +61,7 @@ def compile_kernels() -> float:
     """
     from rootvar.core.fourier.cos import heston_price
     from rootvar.core.fourier.gradient import heston_price_gradient, log_cf_gradient
+    from rootvar.core.fourier.greeks import heston_greeks
     from rootvar.core.montecarlo.european import mc_price
     from rootvar.core.params import HestonParams
 
@@ -71,6 +78,7 @@ def compile_kernels() -> float:
     _compile_contour_strike_mode(p)
     _compile_exotics(p)
     _compile_greeks(p)
+    heston_greeks(p, 100.0, 100.0, 1.0)  # the contour route's Greeks
     heston_price_gradient(p, 100.0, [90.0, 110.0], 1.0)  # the calibration's kernels
     log_cf_gradient([1.0], p, 1.0)
     return time.perf_counter() - start

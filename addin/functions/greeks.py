@@ -73,12 +73,12 @@ GREEK_LABELS = {
 }
 
 _METHOD_WORDS = {
-    "fourier": "Fourier (COS)",
+    "fourier": "Fourier",
     "monte_carlo": "Monte Carlo",
     "pde": "PDE (finite differences)",
 }
 _PRICE_HOW = {
-    "fourier": "certified COS series",
+    "fourier": "certified Fourier price",
     "monte_carlo": "the Greeks' own paths",
     "pde": "ADI grid, refined twice",
 }
@@ -225,7 +225,7 @@ def ROOTVAR_GREEKS(
     g = _cached_greeks(how, p, s, k, t, r, q, kd, sch, n_steps, n_paths, sd)
     figure = "std error" if how == "monte_carlo" else "error estimate"
     rows = [["Greek", "unit", "value", figure, "estimator"]]
-    rows.append(["price", "ccy", _value(g.price), finite(g.price_error), _PRICE_HOW[how]])
+    rows.append(["price", "ccy", _value(g.price), finite(g.price_error), _price_how(g)])
     used = set()
     for name in GREEK_NAMES:
         unit = GREEK_UNITS[name]
@@ -381,9 +381,30 @@ def ROOTVAR_GREEKS_CHECK(
         )
     shown = (": given by ", "not given: ", "a method gave no certified figure")
     notes = [n for n in c.notes if not any(part in n for part in shown)]
-    overall = ["overall", "", "", "", _METHOD_WORDS[c.reference_method], "", "", "", ""]
+    overall = ["overall", "", "", "", _method_words(c.reference), "", "", "", ""]
     rows.append([*overall, c.verdict, "", "; ".join(notes)])
     return rows
+
+
+def _fourier_route(g) -> str:
+    """The Fourier route a result took, as its estimators name it: contour or COS."""
+    return "contour" if any("contour" in e for e in g.estimators.values()) else "COS"
+
+
+def _method_words(g) -> str:
+    """A result's method in words, with the Fourier route where it is Fourier."""
+    if g.method == "fourier":
+        return f"Fourier ({_fourier_route(g)})"
+    return _METHOD_WORDS[g.method]
+
+
+def _price_how(g) -> str:
+    """How a result's price was found, with the Fourier route where it is Fourier."""
+    if g.method == "fourier":
+        if _fourier_route(g) == "contour":
+            return "certified contour integral"
+        return "certified COS series"
+    return _PRICE_HOW[g.method]
 
 
 def _settle_text(settle: int):

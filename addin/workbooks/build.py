@@ -283,7 +283,7 @@ def build_price_twice(path: Path) -> None:
     ws["A26"].font = NOTE
     market = "B12,B13,B14,B15,B16,B17"
     mc = f"{market},B18,B19,B20,B21"
-    ws["D4"] = "Fourier (COS)"
+    ws["D4"] = "Fourier (certified; contour or COS)"
     ws["D4"].font = BOLD
     ws["D5"], ws["E5"] = "price", f"=ROOTVAR_FOURIER_PRICE({block},{market})"
     ws["D6"], ws["E6"] = "implied vol", f"=ROOTVAR_IMPLIED_VOL(E5,{market})"

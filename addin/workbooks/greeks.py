@@ -60,7 +60,7 @@ CHECK_HEADERS = CHECK_COLUMNS
 #: Title, header row and kind of each table: the call's Fourier Greeks, its check against
 #: them, the barrier's check against the PDE.
 TABLES = (
-    ("Call, strike 40, one year: Fourier Greeks (certified COS)", 12, "greeks"),
+    ("Call, strike 40, one year: Fourier Greeks (certified)", 12, "greeks"),
     ("Call, strike 40, one year: Monte Carlo Greeks against Fourier", 27, "check"),
     ("Down-and-out call, barrier 34: Monte Carlo Greeks against the PDE", 43, "check"),
 )
@@ -194,7 +194,7 @@ def add_greeks_sheet(wb, price_twice: str = "Price twice") -> None:
             cell.alignment = Alignment(
                 wrap_text=True, vertical="bottom", horizontal=side, indent=indent
             )
-        # the Greeks table without its notes row (the COS range, repeated in the check's)
+        # the Greeks table without its notes row (the route's details, repeated in the check's)
         height = 1 + len(ROWS) + (what == "check")
         array_formula(ws, f"D{header}", height, len(headers), formula)
         _format_table(ws, header, headers, what, next(checks) if what == "check" else {})

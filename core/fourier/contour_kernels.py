@@ -35,7 +35,9 @@ __all__ = [
     "contour_integral",
     "contour_strip",
     "explosion_time",
+    "finish_price",
     "log_cf",
+    "maturity_scales",
     "moment_edge",
     "pick_contour",
     "table_integral",
@@ -833,3 +835,9 @@ def contour_cells(cfg, strike, head, tab, done, out):
     out[0, n] = ends[0]
     out[1, n] = ends[1]
     out[2, n] = evals + fills[0]
+
+
+#: The per-maturity scales and the price from the integral, for the compiled
+#: kernels of other modules (the contour Greeks in ``contour_greeks_kernels``).
+maturity_scales = _maturity_scales
+finish_price = _finish

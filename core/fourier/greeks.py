@@ -1,4 +1,15 @@
-"""Heston Greeks from the characteristic function, certified like the COS price.
+"""Heston Greeks from the characteristic function, certified like the price.
+
+Two routes, chosen as the price's ``method="auto"`` chooses:
+
+* the contour route (:mod:`rootvar.core.fourier.contour_greeks`), for a
+  maturity with at most ``CONTOUR_STRIKES`` strikes: Lewis's (2001) integral
+  on the price's own turned contour, with the integrand multiplied by the
+  derivatives of its log-strike factor and of the characteristic function;
+  each Greek certified by its own level-difference estimate, an option with
+  any Greek it cannot certify handed over to the COS series (its notes say
+  why);
+* the COS series, below.
 
 Every Greek of a European call or put (:data:`rootvar.core.greeks.GREEK_NAMES`)
 is read from the COS series of the certified pricer (Fang & Oosterlee 2008)
@@ -19,17 +30,33 @@ Albrecher, H., Mayer, P., Schoutens, W. & Tistaert, J. (2007). The little
 Heston trap. Wilmott Magazine, January 2007, 83-92.
 Heston, S. L. (1993). A closed-form solution for options with stochastic
 volatility. Review of Financial Studies 6(2), 327-343.
+Lewis, A. L. (2001). A simple option formula for general jump-diffusion and
+other exponential Lévy processes. Envision Financial Systems.
+Andersen, L. B. G. & Lake, M. (2018). Robust high-precision option pricing by
+Fourier transforms: contour deformations and double-exponential quadrature.
+SSRN 3231626.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import functools
 import math
 from types import MappingProxyType
 
 import numpy as np
 
-from rootvar.core.fourier.cos import heston_price
+from rootvar.core.fourier.contour import TOLERANCE as CONTOUR_TOLERANCE
+from rootvar.core.fourier.contour_greeks import ESTIMATORS as CONTOUR_ESTIMATORS
+from rootvar.core.fourier.contour_greeks import (
+    certified,
+    greek_table,
+    handover_reason,
+    route_note,
+    values_of,
+)
+from rootvar.core.fourier.contour_greeks_kernels import contour_greeks
+from rootvar.core.fourier.cos import CONTOUR_STRIKES, heston_price
 from rootvar.core.fourier.greeks_kernels import (
     SUMS,
     greek_coefficients,
@@ -45,7 +72,7 @@ from rootvar.core.fourier.series import (
     law_facts,
 )
 from rootvar.core.greeks import GREEK_NAMES, Greeks, desk_vega
-from rootvar.core.params import as_params
+from rootvar.core.params import HestonParams, as_params
 from rootvar.core.runtime import notice_if_cold
 from rootvar.core.validation import InputError, as_float, as_float_array, check_choice
 
@@ -58,6 +85,7 @@ __all__ = [
 ]
 
 _KINDS = ("call", "put")
+_METHODS = ("auto", "contour", "cos")
 
 #: Tolerance of every Fourier Greek, relative to its natural scale: ``GREEK_TOL x spot``
 #: for the price-like Greeks (currency per unit of the parameter, rate or year),
@@ -107,15 +135,16 @@ def fourier_greek_tolerances(spot) -> dict:
 
 
 def _tolerances(spot):
-    out = {name: GREEK_TOL * spot for name in ("price", *GREEK_NAMES)}
+    out = dict.fromkeys(("price", *GREEK_NAMES), GREEK_TOL * spot)
     out["delta"] = GREEK_TOL
     out["gamma"] = GREEK_TOL / spot
     return out
 
 
-def _validated(params, spot, rate, div_yield, kind, maturity):
+def _validated(params, spot, rate, div_yield, kind, maturity, method):
     as_params(params)
     check_choice("kind", kind, _KINDS)
+    check_choice("method", method, _METHODS)
     return (
         as_float("spot", spot, ">0"),
         as_float("maturity", maturity, ">0"),
@@ -124,7 +153,9 @@ def _validated(params, spot, rate, div_yield, kind, maturity):
     )
 
 
-def heston_greeks(params, spot, strike, maturity, rate=0.0, div_yield=0.0, kind="call") -> Greeks:
+def heston_greeks(
+    params, spot, strike, maturity, rate=0.0, div_yield=0.0, kind="call", method="auto"
+) -> Greeks:
     """Price and Greeks of a European call or put under Heston, certified.
 
     Parameters
@@ -140,11 +171,23 @@ def heston_greeks(params, spot, strike, maturity, rate=0.0, div_yield=0.0, kind=
     rate, div_yield : float
         Continuously compounded rate and dividend yield (decimals).
     kind : {"call", "put"}
+    method : {"auto", "contour", "cos"}
+        ``"auto"`` (default): the contour route (a maturity with at most
+        ``CONTOUR_STRIKES`` strikes, as :func:`rootvar.core.heston_price`
+        chooses), an option it cannot certify handed over to COS;
+        ``"contour"``: the contour route for any number of strikes, with the
+        same hand-over; ``"cos"``: the COS series.
 
     Returns
     -------
     Greeks
-        ``method="fourier"``.  ``price`` is
+        ``method="fourier"``.  On the contour route ``price`` is the contour's
+        (certified to 1e-10 x spot by its own estimate, ``price_error``),
+        ``estimators`` say ``"contour"`` and the first note
+        (``"contour: ..."``) names the contour and the level; an option
+        handed over to COS has COS's Greeks and a last note ``"handed over to
+        COS by the contour route: <reason>"`` naming the Greeks past their
+        tolerance.  On COS ``price`` is
         ``heston_price(..., method="cos")``'s (certified to 1e-10 x spot, as
         the default route is); ``price_error`` its estimate on this grid;
         ``values`` holds every name of :data:`rootvar.core.GREEK_NAMES` in its
@@ -160,7 +203,11 @@ def heston_greeks(params, spot, strike, maturity, rate=0.0, div_yield=0.0, kind=
 
     Notes
     -----
-    The put on the range ``[a, b]`` with ``N`` terms, ``w_k = k pi / (b - a)``,
+    Contour route: see :func:`rootvar.core.fourier.contour_greeks.greek_table`
+    (the Greeks as combinations of nine integrals on the price's contour, and
+    how each is certified).
+
+    COS route: the put on the range ``[a, b]`` with ``N`` terms, ``w_k = k pi / (b - a)``,
     ``x = ln(S_0 / K)`` and the kink ``c = -x`` (clipped to the range) is
 
     .. math:: P = e^{-rT} \\sum_{k<N}{}' \\mathrm{Re}\\big[\\varphi(w_k) e^{-i w_k a}\\big] V_k,
@@ -234,6 +281,13 @@ def heston_greeks(params, spot, strike, maturity, rate=0.0, div_yield=0.0, kind=
     Cui, Y., del Baño Rollin, S. & Germano, G. (2017). Full and fast
     calibration of the Heston stochastic volatility model. European Journal
     of Operational Research 263(2), 625-638 (the parameter derivatives).
+    Lewis, A. L. (2001). A simple option formula for general jump-diffusion
+    and other exponential Lévy processes. Envision Financial Systems.
+    Lord, R. & Kahl, C. (2007). Optimal Fourier inversion in semi-analytical
+    option pricing. Journal of Computational Finance 10(4), 1-30.
+    Andersen, L. B. G. & Lake, M. (2018). Robust high-precision option
+    pricing by Fourier transforms: contour deformations and double-exponential
+    quadrature. SSRN 3231626.
 
     Examples
     --------
@@ -242,19 +296,57 @@ def heston_greeks(params, spot, strike, maturity, rate=0.0, div_yield=0.0, kind=
     >>> round(g.price, 4), round(g["delta"], 4), g.method
     (7.0243, 0.6393, 'fourier')
     """
-    spot, maturity, rate, div_yield = _validated(params, spot, rate, div_yield, kind, maturity)
-    strike = as_float("strike", strike, ">0")
-    return _strip(params, spot, np.array([strike]), maturity, rate, div_yield, kind)[0]
+    plain = _plain_numbers(params, spot, strike, maturity, rate, div_yield, kind, method)
+    if plain is None:  # the general checks, which name what is wrong
+        spot, maturity, rate, div_yield = _validated(
+            params, spot, rate, div_yield, kind, maturity, method
+        )
+        strike = as_float("strike", strike, ">0")
+    else:
+        spot, strike, maturity, rate, div_yield = plain
+    return _strip(params, spot, np.array([strike]), maturity, rate, div_yield, kind, method)[0]
+
+
+#: Argument types :func:`heston_greeks` takes as they are (anything else goes
+#: through the general validation).
+_PLAIN = (float, int, np.float64)
+
+
+def _plain_numbers(params, spot, strike, maturity, rate, div_yield, kind, method):
+    """The numeric arguments as floats when they are plain valid numbers, else None.
+
+    The general checks cost twice the contour route's Greeks of one option; a
+    spreadsheet column of them passes plain numbers.  Anything else (a bool, a
+    string, an array, a number breaking its rule) goes to them.
+    """
+    values = (spot, strike, maturity, rate, div_yield)
+    for x in values:
+        if type(x) not in _PLAIN:
+            return None
+    spot, strike, maturity, rate, div_yield = (float(x) for x in values)
+    if not (
+        math.isfinite(spot + strike + maturity + rate + div_yield)
+        and spot > 0.0
+        and strike > 0.0
+        and maturity > 0.0
+        and type(params) is HestonParams
+        and type(kind) is str
+        and kind in _KINDS
+        and type(method) is str
+        and method in _METHODS
+    ):
+        return None
+    return spot, strike, maturity, rate, div_yield
 
 
 def heston_greeks_strip(
-    params, spot, strike, maturity, rate=0.0, div_yield=0.0, kind="call"
+    params, spot, strike, maturity, rate=0.0, div_yield=0.0, kind="call", method="auto"
 ) -> tuple:
     """:func:`heston_greeks` for a strip of strikes at one maturity, in one pass.
 
     Parameters
     ----------
-    params, spot, maturity, rate, div_yield, kind
+    params, spot, maturity, rate, div_yield, kind, method
         As in :func:`heston_greeks`.
     strike : array_like
         Strikes, > 0 (one-dimensional, or a single number).
@@ -262,25 +354,93 @@ def heston_greeks_strip(
     Returns
     -------
     tuple of Greeks
-        One per strike, in order.  The strip shares one truncation range (the
-        certified pricer's for the strip) and one term count; each strike's
-        Greeks are certified on their own.  Where the pricer cannot certify a
-        COS range for the strip (it then prices the whole maturity by another
-        route), no strike has Greeks.
+        One per strike, in order.  On the contour route each strike has its
+        own contour (the strip's moment strip is found once), and the
+        strikes it hands over share one COS series.  On COS the strip shares
+        one truncation range (the certified pricer's for the strip) and one
+        term count; each strike's Greeks are certified on their own.  Where
+        the pricer cannot certify a COS range for the strip (it then prices
+        the whole maturity by another route), no strike has COS Greeks.
 
     References
     ----------
     See :func:`heston_greeks`.
     """
-    spot, maturity, rate, div_yield = _validated(params, spot, rate, div_yield, kind, maturity)
+    spot, maturity, rate, div_yield = _validated(
+        params, spot, rate, div_yield, kind, maturity, method
+    )
     strike = as_float_array("strike", strike, ">0")
     if strike.ndim > 1:
         raise InputError(f"strike must be a number or a 1-d array, got shape {strike.shape}")
-    return _strip(params, spot, np.atleast_1d(strike), maturity, rate, div_yield, kind)
+    return _strip(params, spot, np.atleast_1d(strike), maturity, rate, div_yield, kind, method)
 
 
-def _strip(params, spot, strike, t, rate, q, kind):
-    """The Greeks of every strike of one maturity (inputs already checked)."""
+def _strip(params, spot, strike, t, rate, q, kind, method):
+    """The Greeks of every strike of one maturity (inputs already checked), by the
+    route ``method`` asks for (``"auto"``: the contour for at most ``CONTOUR_STRIKES``)."""
+    if method == "cos" or (method == "auto" and strike.size > CONTOUR_STRIKES):
+        return _cos_strip(params, spot, strike, t, rate, q, kind)
+    return _contour_strip(params, spot, strike, t, rate, q, kind)
+
+
+def _contour_strip(params, spot, strike, t, rate, q, kind):
+    """The contour route's Greeks of every strike; a strike any of whose Greeks it
+    cannot certify is handed over to the COS series, with a note saying why."""
+    global _CONTOUR_NOTICED
+    if not _CONTOUR_NOTICED:
+        notice_if_cold(contour_greeks)
+        _CONTOUR_NOTICED = True
+    strike = np.ascontiguousarray(strike, dtype=np.float64)
+    if not strike.flags.writeable:  # one compiled signature: writeable arrays only
+        strike = strike.copy()
+    tol, grid = _contour_tolerances(spot, GREEK_TOL)
+    table = greek_table(params, spot, strike, t, rate, q, kind == "put", tol)
+    out, rest = [], []
+    for s, good in enumerate(certified(table)):
+        if good:
+            price, values, errors, price_error = values_of(table, s)
+            g = Greeks(
+                price=price,
+                values=values,
+                errors=errors,
+                method="fourier",
+                estimators=dict(CONTOUR_ESTIMATORS),
+                price_error=price_error,
+                notes=(route_note(table, s), grid),
+            )
+        else:
+            g = None
+            rest.append(s)
+        out.append(g)
+    if rest:
+        by_cos = _cos_strip(params, spot, strike[rest], t, rate, q, kind)
+        for s, g in zip(rest, by_cos, strict=True):
+            why = f"handed over to COS by the contour route: {handover_reason(table, s)}"
+            out[s] = dataclasses.replace(g, notes=(*g.notes, why))
+    return tuple(out)
+
+
+#: True once this process has looked whether the contour Greeks' kernel needs compiling.
+_CONTOUR_NOTICED = False
+
+
+@functools.lru_cache(maxsize=64)
+def _contour_tolerances(spot, greek_tol):
+    """The contour kernel's tolerances (the price's, then each Greek's; ``greek_tol`` is
+    ``GREEK_TOL``, read by the caller so that a changed constant is seen) and the note
+    stating them.  Remembered: a column of cells has one spot."""
+    tol = _tolerances(spot)
+    # kept writeable, and never written: a read-only array is another compiled signature
+    row = np.array([CONTOUR_TOLERANCE * spot] + [tol[name] for name in GREEK_NAMES])
+    grid = (
+        f"tolerances: {greek_tol:g} x spot (price-like), {greek_tol:g} (delta), "
+        f"{greek_tol:g} / spot (gamma)"
+    )
+    return row, grid
+
+
+def _cos_strip(params, spot, strike, t, rate, q, kind):
+    """The COS series' Greeks of every strike of one maturity (inputs already checked)."""
     notice_if_cold(greek_coefficients, greek_payoff_sums, greek_tails)
     drift = rate - q
     disc, div_disc = math.exp(-rate * t), math.exp(-q * t)

@@ -26,7 +26,14 @@ import numpy as np
 from rootvar.core.fourier.gradient_kernels import log_cf_gradient_at
 from rootvar.core.runtime import njit
 
-__all__ = ["COLUMNS", "SUMS", "greek_coefficients", "greek_payoff_sums", "greek_tails"]
+__all__ = [
+    "COLUMNS",
+    "SUMS",
+    "greek_coefficients",
+    "greek_payoff_sums",
+    "greek_tails",
+    "maturity_derivative_at",
+]
 
 #: The sums :func:`greek_payoff_sums` returns per range and strike, in order; the
 #: first seven are also the coefficient columns of :func:`greek_coefficients`.
@@ -228,3 +235,8 @@ def greek_tails(u, t, model, drift, spot, max_strike, disc):
         for p in range(9):
             tail[p, i] = tail[p, i + 1] + max(f[p, i], f[p, i + 1]) * width
     return tail
+
+
+#: The derivative in maturity of ``ln phi`` (the Riccati equations), for the
+#: compiled kernels of other modules (the contour Greeks, at complex ``u``).
+maturity_derivative_at = _maturity_derivative

@@ -67,7 +67,9 @@ def test_greeks_spill_a_header_the_price_and_every_greek_of_the_core():
     assert rows[0] == ["Greek", "unit", "value", "error estimate", "estimator"]
     assert len(rows) == 1 + len(ROWS) + 1 and all(len(r) == 5 for r in rows)
     assert [r[0] for r in rows[1:-1]] == [GREEK_LABELS[n] for n in ROWS]
-    assert rows[-1][0] == "notes" and "COS range" in rows[-1][4]
+    # the default route is the contour; its first note says where it integrated
+    assert rows[-1][0] == "notes" and rows[-1][4].startswith("contour: alpha")
+    assert rows[1][4] == "certified contour integral"
     assert rows[1][1:4] == ["ccy", g.price, g.price_error]
     for name, row in zip(GREEK_NAMES, rows[2:-1], strict=True):
         assert row[1] == GREEK_UNITS[name]
@@ -169,7 +171,7 @@ def test_greeks_check_of_a_european_is_the_core_comparison():
         assert row[10] == ("" if settle == 0 else "no count" if settle < 0 else settle)
         assert (settle == 0) == (t["verdict"] != "undecided")
     overall = rows[-1]
-    assert overall[0] == "overall" and overall[4] == "Fourier (COS)"
+    assert overall[0] == "overall" and overall[4] == "Fourier (contour)"
     assert overall[9] == c.verdict and overall[10] == "" and "mc_price(" in overall[11]
     _no_raw_nan(rows)
 

@@ -419,7 +419,7 @@ def test_greeks_sheet_agrees_with_the_core(computed):
         overall = header + len(ROWS) + 1
         assert ws.cell(row=overall, column=4).value == "overall"
         assert ws.cell(row=overall, column=13).value == c.verdict
-        method = {"fourier": "Fourier (COS)", "pde": "PDE (finite differences)"}
+        method = {"fourier": "Fourier (contour)", "pde": "PDE (finite differences)"}
         assert ws.cell(row=overall, column=8).value == method[c.reference_method]
     # the shipped call decides its delta, gamma and rhos at 100,000 paths
     verdicts = {ws.cell(row=vanilla + i, column=4).value: ws.cell(row=vanilla + i, column=13).value

@@ -214,35 +214,40 @@ def test_every_greek_matches_extended_precision_differences_of_the_price(seed, c
     # actual error up to the quotient's own accuracy: a hundredth of the tolerance, half
     # for gamma, whose quotient over h^2 keeps up to some 4e-11 (spot 100) of the long
     # double sum's rounding at its best step on one-week, small-v0 cases (a sweep of 300
-    # hard-box cases by hand); where long double is double, the tolerance.
+    # hard-box cases by hand); where long double is double, the tolerance.  Both
+    # routes: the default (the contour, or COS where it hands over) and COS.
     floor = {name: 1e-2 for name in GREEK_NAMES} | {"gamma": 0.5}
     if not _EXTENDED:
         floor = dict.fromkeys(GREEK_NAMES, 1.0)
     for case in _box(seed, count, hard):
-        g = heston_greeks(*case)
         tol = fourier_greek_tolerances(case[1])
         ref, ref_price = _differences(*case)
-        assert g.price == pytest.approx(ref_price, abs=1e-10 * case[1]), case
-        assert g.price_error <= 1e-10 * case[1] * 100, case
-        for name in GREEK_NAMES:
-            err = abs(g[name] - ref[name])
-            assert err <= tol[name], (name, case, g[name], ref[name])
-            assert g.errors[name] <= tol[name], (name, case)
-            assert err <= g.errors[name] + floor[name] * tol[name], (
-                name,
-                case,
-                err,
-                g.errors[name],
-            )
+        for method in ("auto", "cos"):
+            g = heston_greeks(*case, method=method)
+            assert g.price == pytest.approx(ref_price, abs=1e-10 * case[1]), (method, case)
+            assert g.price_error <= 1e-10 * case[1] * 100, (method, case)
+            for name in GREEK_NAMES:
+                err = abs(g[name] - ref[name])
+                assert err <= tol[name], (name, method, case, g[name], ref[name])
+                assert g.errors[name] <= tol[name], (name, method, case)
+                assert err <= g.errors[name] + floor[name] * tol[name], (
+                    name,
+                    method,
+                    case,
+                    err,
+                    g.errors[name],
+                )
 
 
-def _black_scholes_limit(rho, kind):
+def _black_scholes_limit(rho, kind, method="cos"):
     """Heston price and Greeks at vol_of_vol -> 0 with v0 = theta, extrapolated from
     vol_of_vol s, 2s and 4s: (8 G(s) - 6 G(2s) + G(4s)) / 3 removes the terms in s and
     s^2 (the first is there when rho != 0)."""
     theta, kappa, spot, strike, t, r, q = 0.05, 1.2, 100.0, 95.0, 0.8, 0.03, 0.01
     runs = [
-        heston_greeks(HestonParams(theta, kappa, theta, m * 1e-3, rho), spot, strike, t, r, q, kind)
+        heston_greeks(
+            HestonParams(theta, kappa, theta, m * 1e-3, rho), spot, strike, t, r, q, kind, method
+        )
         for m in (1, 2, 4)
     ]
 
@@ -256,14 +261,15 @@ def _black_scholes_limit(rho, kind):
 
 @pytest.mark.parametrize("rho", [0.0, -0.6])
 @pytest.mark.parametrize("kind", ["call", "put"])
-def test_greeks_tend_to_black_scholes_as_vol_of_vol_vanishes(rho, kind):
+@pytest.mark.parametrize("method", ["auto", "cos"])
+def test_greeks_tend_to_black_scholes_as_vol_of_vol_vanishes(rho, kind, method):
     # Black & Scholes (1973) / Merton (1973) Greeks (Hull, Options, Futures, and Other
     # Derivatives, "The Greek letters") at vol sqrt(theta): with vol_of_vol -> 0 and
     # v0 = theta the variance stays at theta.  The variance sensitivities split the
     # Black-Scholes total-variance sensitivity dV/dW = vega / (2 vol T) by how v0 and
     # theta move the integrated variance W = theta T + (v0 - theta)(1 - e^{-kappa T})/kappa
     # (common practice, no source); kappa and rho then move nothing.
-    values, price, bs_args, kappa = _black_scholes_limit(rho, kind)
+    values, price, bs_args, kappa = _black_scholes_limit(rho, kind, method)
     spot, _, t, vol = bs_args[:4]
     bs = bs_greeks(*bs_args)
     assert price == pytest.approx(bs_price(*bs_args), rel=1e-8)
@@ -277,12 +283,14 @@ def test_greeks_tend_to_black_scholes_as_vol_of_vol_vanishes(rho, kind):
     assert abs(values["d_rho"]) <= 1e-8 * spot
 
 
-def test_greeks_of_calls_and_puts_obey_put_call_parity():
-    # derivatives of C - P = S e^{-qT} - K e^{-rT} (identity, common practice, no source)
+@pytest.mark.parametrize("method", ["auto", "cos"])
+def test_greeks_of_calls_and_puts_obey_put_call_parity(method):
+    # derivatives of C - P = S e^{-qT} - K e^{-rT} (identity, common practice, no source);
+    # both routes read a call and a put from the same sums (the put's, or the contour's)
     spot, t, r, q = 100.0, 0.9, 0.04, 0.015
     strikes = np.array([60.0, 85.0, 100.0, 120.0, 160.0])
-    calls = heston_greeks_strip(P, spot, strikes, t, r, q, "call")
-    puts = heston_greeks_strip(P, spot, strikes, t, r, q, "put")
+    calls = heston_greeks_strip(P, spot, strikes, t, r, q, "call", method)
+    puts = heston_greeks_strip(P, spot, strikes, t, r, q, "put", method)
     for k, c, p in zip(strikes, calls, puts, strict=True):
         assert c["delta"] - p["delta"] == pytest.approx(math.exp(-q * t), abs=1e-12)
         parity_theta = q * spot * math.exp(-q * t) - r * k * math.exp(-r * t)
@@ -295,9 +303,10 @@ def test_greeks_of_calls_and_puts_obey_put_call_parity():
 
 
 def test_price_is_the_certified_price_and_the_result_is_the_shared_type():
-    # rootvar.core.heston_price: its COS route is the price given, and its default
-    # route (certified to 1e-10 x spot by its own estimate) agrees
-    g = heston_greeks(P, 100.0, 105.0, 0.75, 0.02, 0.01, "call")
+    # rootvar.core.heston_price: on the COS route its COS price is the price given, and
+    # its default route (certified to 1e-10 x spot by its own estimate) agrees; the
+    # contour route's Greeks: tests/core/fourier/test_contour_greeks.py
+    g = heston_greeks(P, 100.0, 105.0, 0.75, 0.02, 0.01, "call", method="cos")
     assert isinstance(g, Greeks) and g.method == "fourier"
     args = (P, 100.0, 105.0, 0.75, 0.02, 0.01, "call")
     assert g.price == heston_price(*args, method="cos")
@@ -316,13 +325,15 @@ def test_tolerances_are_stated_in_each_greeks_unit():
     assert tol["theta"] == tol["d_v0"] == tol["rho_rate"] == pytest.approx(1e-8 * 250.0)
 
 
-def test_a_strip_agrees_with_one_strike_at_a_time():
-    # identity: the strip shares one range (the strip's certified one); each strike's
-    # Greeks agree with its own call to within the two error estimates
+@pytest.mark.parametrize("method", ["auto", "cos"])
+def test_a_strip_agrees_with_one_strike_at_a_time(method):
+    # identity: on COS the strip shares one range (the strip's certified one), on the
+    # contour each strike has its own contour; each strike's Greeks agree with its own
+    # call to within the two error estimates
     strikes = np.array([70.0, 100.0, 140.0])
-    strip = heston_greeks_strip(P, 100.0, strikes, 2.0, 0.01, 0.0, "put")
+    strip = heston_greeks_strip(P, 100.0, strikes, 2.0, 0.01, 0.0, "put", method)
     for k, g in zip(strikes, strip, strict=True):
-        alone = heston_greeks(P, 100.0, k, 2.0, 0.01, 0.0, "put")
+        alone = heston_greeks(P, 100.0, k, 2.0, 0.01, 0.0, "put", method)
         for name in GREEK_NAMES:
             assert abs(g[name] - alone[name]) <= g.errors[name] + alone.errors[name] + 1e-13, name
 
@@ -332,8 +343,8 @@ def test_strikes_far_beyond_the_range_have_the_limits_of_delta_and_gamma():
     # above it is K e^{-rT} - S e^{-qT} (delta -e^{-qT}); both with gamma 0.  Both kinks
     # lie beyond the doubled range, where the tail masses bound delta and gamma.
     t, q = 0.5, 0.02
-    low = heston_greeks(P, 100.0, 1e-3, t, 0.03, q, "put")
-    high = heston_greeks(P, 100.0, 1e4, t, 0.03, q, "put")
+    low = heston_greeks(P, 100.0, 1e-3, t, 0.03, q, "put", method="cos")
+    high = heston_greeks(P, 100.0, 1e4, t, 0.03, q, "put", method="cos")
     assert low["delta"] == pytest.approx(0.0, abs=1e-8)
     assert high["delta"] == pytest.approx(-math.exp(-q * t), abs=1e-8)
     for g in (low, high):
@@ -363,7 +374,7 @@ def test_a_series_longer_than_allowed_leaves_its_greeks_nan(monkeypatch):
     monkeypatch.setattr(fourier_greeks, "MAX_TERMS", details.terms[1.0])
     monkeypatch.setattr(fourier_greeks, "TAIL_SHARE", 1e-6)
     fourier_greeks.clear_cache()  # it remembers the term rule's answers
-    g = heston_greeks(P, 100.0, 100.0, 1.0)
+    g = heston_greeks(P, 100.0, 100.0, 1.0, method="cos")
     fourier_greeks.clear_cache()
     assert math.isnan(g["gamma"])
     assert any("gamma not certified: the series needs more terms" in n for n in g.notes)
@@ -374,7 +385,7 @@ def test_no_greek_where_the_cos_range_cannot_be_certified(monkeypatch):
     # most terms passes (the pricer then goes to another route): no COS series to read
     # Greeks from, so none is given; the price is heston_price's
     monkeypatch.setattr(fourier_greeks, "certified_puts", lambda *args: (None, 0, (12.0, 12.0)))
-    g = heston_greeks(P, 100.0, 100.0, 1.0)
+    g = heston_greeks(P, 100.0, 100.0, 1.0, method="cos")
     assert all(math.isnan(g[name]) for name in GREEK_NAMES)
     assert "no Greek certified" in g.notes[0]
     assert g.price == heston_price(P, 100.0, 100.0, 1.0)
@@ -393,6 +404,7 @@ def test_no_greek_where_the_cos_range_cannot_be_certified(monkeypatch):
         ({"rate": True}, "rate"),
         ({"div_yield": np.inf}, "div_yield"),
         ({"kind": "straddle"}, "kind"),
+        ({"method": "quad"}, "method"),
     ],
 )
 def test_junk_input_names_the_argument(kwargs, name):
