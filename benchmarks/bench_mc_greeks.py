@@ -4,11 +4,14 @@ Each case times the price call whose paths :func:`rootvar.core.mc_greeks` reuses
 (``mc_price(..., conditional=True)`` for the European, ``mc_exotic(...,
 control="none")`` for the barrier and the digital) and the Greeks call, in
 alternating rounds in one run (the shared machine's speed drifts), and prints
-the medians and their ratio.  Target (issue 22): Greeks at most 1.5x the price.
+the medians and their ratio, with the machine's load average before and after
+(the ratios are only comparable between runs at a like load).  Target (issue
+22): Greeks at most 1.5x the price.
 """
 
 from __future__ import annotations
 
+import os
 import statistics
 import time
 
@@ -74,7 +77,12 @@ def _cases():
     return out
 
 
+def _load() -> str:
+    return "load average " + ", ".join(f"{x:.2f}" for x in os.getloadavg())
+
+
 def run() -> None:
+    print(f"  {_load()} (1, 5, 15 min) before")
     print(
         f"  {PATHS:,} antithetic paths, S=K=100, T=1, FO parameters; median of {ROUNDS} "
         "alternating rounds (whole calls); ratio = Greeks / price, in wall time and in the "
@@ -95,6 +103,7 @@ def run() -> None:
         print(f"  {label}")
         show("  price on the paths", p)
         show(f"  price + every Greek   ratio {g / p:.2f}x (CPU {ratio_cpu:.2f}x)", g)
+    print(f"  {_load()} after")
 
 
 if __name__ == "__main__":

@@ -153,25 +153,36 @@ def _blocks(paths, antithetic):
     return sizes
 
 
-def _run(root, sizes, chunk_paths, block):
-    """Per-block sums, squares and counts from the children of ``root``, in block order."""
-    n_blocks = len(sizes)
+def _run(batches, chunk_paths, block):
+    """Per-block sums, squares and counts of each batch ``(root, sizes)``, in block order.
 
-    def run_block(j):
+    The blocks of all batches go to the threads as one list, a chunk at a
+    time, so that a small batch (the barrier's pilot, one block) runs beside
+    the main run's last chunk instead of alone after it on one thread.  Each
+    block draws from its own child of its batch's root, so neither this nor
+    the chunk size nor the thread count changes a bit of the result.
+    """
+    tasks = [(b, j) for b, (_, sizes) in enumerate(batches) for j in range(len(sizes))]
+
+    def run_block(task):
+        b, j = task
+        root, sizes = batches[b]
         return block(np.random.Generator(np.random.SFC64(block_seed(root, j))), sizes[j])
 
-    sums = np.zeros((n_blocks, gk.N_SUMS))
-    squares = np.zeros((n_blocks, gk.N_SUMS))
-    counts = []
+    out = [
+        (np.zeros((len(sizes), gk.N_SUMS)), np.zeros((len(sizes), gk.N_SUMS)), [])
+        for _, sizes in batches
+    ]
     per_chunk = max(1, chunk_paths // BLOCK)
-    pool = thread_pool() if n_blocks > 1 else None
-    for first in range(0, n_blocks, per_chunk):
-        ids = range(first, min(first + per_chunk, n_blocks))
-        results = pool.map(run_block, ids) if pool else map(run_block, ids)
-        for j, (s, sq, cnt) in zip(ids, results, strict=True):
+    pool = thread_pool() if len(tasks) > 1 else None
+    for first in range(0, len(tasks), per_chunk):
+        chunk = tasks[first : first + per_chunk]
+        results = pool.map(run_block, chunk) if pool else map(run_block, chunk)
+        for (b, j), (s, sq, cnt) in zip(chunk, results, strict=True):
+            sums, squares, counts = out[b]
             sums[j], squares[j] = s, sq
             counts.append(cnt)
-    return sums, squares, np.sum(counts, axis=0)
+    return [(sums, squares, np.sum(counts, axis=0)) for sums, squares, counts in out]
 
 
 @dataclass(frozen=True)
@@ -274,7 +285,7 @@ def _european(params, spot, product, rate, div_yield, info, steps, paths, seed, 
             gen, size, anti, info.kind, fmap, consts, params.v0, steps, market, params.rho
         )
 
-    sums, squares, counts = _run(np.random.SeedSequence(int(seed)), sizes, chunk, block)
+    ((sums, squares, counts),) = _run([(np.random.SeedSequence(int(seed)), sizes)], chunk, block)
     if counts[1]:
         raise diverged_error(info_name(info), *check_stable_args)
     return _moments(sums, squares, int(counts[0]), price_width=1), None
@@ -319,18 +330,21 @@ def _exotic(params, spot, product, rate, div_yield, info, steps, paths, seed, an
     def block(gen, size):
         return exotic_greeks_block(gen, size, anti, *args)
 
-    def moments(root, n_paths, width):
-        sums, squares, counts = _run(root, _blocks(n_paths, anti), chunk, block)
+    batches = [(np.random.SeedSequence(int(seed)), _blocks(paths, anti))]
+    scored = lengths.size >= 2  # one step, integrated whole: no first-step score, no pilot
+    if scored:
+        pilot_root = np.random.SeedSequence(int(seed), spawn_key=(PILOT_KEY,))
+        batches.append((pilot_root, _blocks(min(PILOT_PATHS, paths), anti)))
+    runs = _run(batches, chunk, block)
+    for _, _, counts in runs:
         if counts[1]:
             raise diverged_error(info_name(info), *stable)
-        return _moments(sums, squares, int(counts[0]), price_width=width)
-
-    main = moments(np.random.SeedSequence(int(seed)), paths, 5)
-    if lengths.size < 2:  # one step, integrated whole: no first-step score
+    sums, squares, counts = runs[0]
+    main = _moments(sums, squares, int(counts[0]), price_width=5)
+    if not scored:
         return main, None
-    pilot_paths = min(PILOT_PATHS, paths)
-    pilot = moments(np.random.SeedSequence(int(seed), spawn_key=(PILOT_KEY,)), pilot_paths, 0)
-    return main, _weights(pilot)
+    sums, squares, counts = runs[1]
+    return main, _weights(_moments(sums, squares, int(counts[0]), price_width=0))
 
 
 def _knocked(params, spot, product, rate, div_yield, **run):

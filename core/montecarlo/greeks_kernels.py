@@ -36,6 +36,14 @@ Greeks out.
 No kernel draws a number the price kernel does not draw, and the price is
 computed by the price kernel's own operations, so a block's price has the
 same bits as the price kernel's on that block.
+
+For speed (issue 22: the Greeks at most 1.5x the price) the tangents run in
+vector loops beside the price's scalar ones; full truncation, the default
+Greeks scheme, has loops of its own with :func:`_coefficients` written out at
+its weights, and a European's variance step and tangents share one pass; each
+path's values go into the block's sums as they are formed, with no table of
+them.  These change the order in which paths are visited, never the
+operations on one path, so no number changes.
 """
 
 from __future__ import annotations
@@ -200,6 +208,10 @@ def _coefficients(x, root, z, w, c):
 # normal over the step's deviation) and write at most two: LLVM then needs few
 # run-time overlap checks and runs them on vector instructions.
 IN_X, IN_ROOT, IN_Z, IN_NOISE, IN_RHO, IN_SCALE = range(6)
+# an Euler barrier path's step also keeps its log-price normal and deviation there,
+# and its dI, from which :func:`_barrier_tangents` forms what rows IN_NOISE .. IN_SCALE
+# hold for the other schemes
+IN_ZX, IN_SROOT, IN_DINT = 6, 7, 8
 
 
 @njit(cache=True, nogil=True, error_model="numpy")
@@ -286,6 +298,86 @@ def _shift_x(n, inp, tx):
         tx_scale[i] += inc_scale[i]
 
 
+@njit(cache=True, inline="always")
+def _euler_increments(d_int, root, zi, zxi, s_root, c5, rho, carry, inv_t):
+    """An Euler step's ``Zx / s`` and log-price increments in rho and in the time scale.
+
+    By the operations of :func:`exotic_greeks_block`'s step loop for the
+    other schemes, from the step's ``dI``, ``root = sqrt(f3(v))``, its two
+    normals, ``s`` (the log-price deviation) and ``c5 = sqrt(dt)`` (``dM``
+    is the price kernel's ``c5 (root z)``).
+    """
+    d_mart = c5 * (root * zi)
+    noise = zxi / s_root if s_root > 0.0 else 0.0
+    inc_rho = d_mart - rho * d_int * noise
+    inc_scale = carry - 0.5 * d_int + 0.5 * rho * d_mart + 0.5 * s_root * zxi
+    return noise, inc_rho, inc_scale * inv_t
+
+
+# The two loops below read the scheme's constants before the loop: a loop of
+# _euler_increments reading them from ``c`` inside it (an array the compiler cannot
+# tell from those written) stayed scalar.
+@njit(cache=True, nogil=True, error_model="numpy")
+def _barrier_increments(n, inp, c, rho, carry, inv_t):
+    """Rows IN_NOISE, IN_RHO, IN_SCALE of ``n`` Euler paths (:func:`_euler_increments`)."""
+    c5 = c[5]
+    ro, z, zx, sr, di = inp[IN_ROOT], inp[IN_Z], inp[IN_ZX], inp[IN_SROOT], inp[IN_DINT]
+    noise, inc_rho, inc_scale = inp[IN_NOISE], inp[IN_RHO], inp[IN_SCALE]
+    for i in range(n):
+        noise[i], inc_rho[i], inc_scale[i] = _euler_increments(
+            di[i], ro[i], z[i], zx[i], sr[i], c5, rho, carry, inv_t
+        )
+
+
+@njit(cache=True, nogil=True, error_model="numpy")
+def _barrier_tangents(n, inp, fmap, w, c, rho, one_rho2, carry, inv_t, tv, tx):
+    """Advance the tangents of v and of the log-price of ``n`` Euler paths by one step.
+
+    The step's increments are formed here, in vector loops, rather than in
+    the scalar step loop.  Full truncation runs :func:`_tangents_x`,
+    :func:`_shift_x` and the increments in one loop, with
+    :func:`_coefficients` written out at its weights as in
+    :func:`_full_truncation_step` (same bits); the other maps run them in turn.
+    """
+    if not full_truncation(fmap):
+        _barrier_increments(n, inp, c, rho, carry, inv_t)
+        _tangents_x(n, inp, w, c, rho, one_rho2, tv, tx)
+        _shift_x(n, inp, tx)
+        return
+    dt, theta, kdt, sq_dt, sq = c[0], c[2], c[4], c[5], c[6]
+    xo, ro, z = inp[IN_X], inp[IN_ROOT], inp[IN_Z]
+    zx, sr, di = inp[IN_ZX], inp[IN_SROOT], inp[IN_DINT]
+    tv0, tv1, tv2, tv3 = tv[0], tv[1], tv[2], tv[3]
+    tx0, tx1, tx2, tx3, tx_rho, tx_scale = tx[0], tx[1], tx[2], tx[3], tx[4], tx[5]
+    for i in range(n):
+        x, root, zi = xo[i], ro[i], z[i]
+        noise, inc_rho, inc_scale = _euler_increments(
+            di[i], root, zi, zx[i], sr[i], sq_dt, rho, carry, inv_t
+        )
+        p = np.float64(x > 0.0)
+        g = 0.5 * p / max(root, _TINY_ROOT)
+        a = 1.0 - kdt * p + sq * zi * g
+        b = dt * p
+        m = sq_dt * zi * g
+        e_k = dt * (theta - max(x, 0.0))
+        e_s = sq_dt * root * zi
+        slope = -0.5 * b + rho * m + 0.5 * one_rho2 * b * noise
+        t = tv0[i]
+        tx0[i] += slope * t
+        tv0[i] = a * t
+        t = tv1[i]
+        tx1[i] += slope * t
+        tv1[i] = a * t + e_k
+        t = tv2[i]
+        tx2[i] += slope * t
+        tv2[i] = a * t + kdt
+        t = tv3[i]
+        tx3[i] += slope * t
+        tv3[i] = a * t + e_s
+        tx_rho[i] += inc_rho
+        tx_scale[i] += inc_scale
+
+
 @njit(cache=True, nogil=True, error_model="numpy")
 def _mart_tangents(size, v, v0, int_var, mart, c, maturity, tv, tim):
     """Full truncation's tangents of M from those of ``v_n`` and ``I``.
@@ -337,78 +429,154 @@ def _conditional_terms(digital, sign, cash, log_fwd, log_k, strike, root, disc):
 
 
 @njit(cache=True, inline="always")
-def _conditional_greeks(out, i, terms, rho, int_var, mart, ti, tm, tangents, market):
-    """Row ``i`` of ``out``: the conditional estimator's price and Greeks on one path.
+def _market_scalars(market):
+    """The market entries :func:`_conditional_greeks` reads, as numbers read once a block.
 
-    ``terms`` is :func:`_conditional_terms`; ``ln F = ln S0 + (r - q) T + A
-    + rho M - rho^2 I / 2`` and ``w = (1 - rho^2) I`` carry the path's
-    dependence on every input (see :func:`european_greeks_block`);
-    ``ti[:, i]``, ``tm[:, i]`` hold the tangents of ``I`` and ``M`` (Euler,
-    ``tangents`` True).
+    ``(S0, r, T, 1 / T, (r - q) T, kappa, vol_of_vol, 2 sqrt(v0), 2 sqrt(theta))``:
+    read from the array on every path they could not be kept in registers
+    (the compiler cannot tell the array from the rows written).
+    """
+    maturity = market[M_MATURITY]
+    return (
+        market[M_SPOT],
+        market[M_RATE],
+        maturity,
+        1.0 / maturity,
+        market[M_CARRY],
+        market[M_KAPPA],
+        market[M_SIGMA],
+        market[M_VEGA_V0],
+        market[M_VEGA_THETA],
+    )
+
+
+@njit(cache=True, inline="always")
+def _conditional_greeks(out, i, terms, rho, int_var, mart, ti, tm, j, tangents, mk):
+    """Row ``i`` of ``out``: the conditional estimator's price and Greeks on path ``j``.
+
+    ``terms`` is :func:`_conditional_terms`, ``mk`` :func:`_market_scalars`;
+    ``ln F = ln S0 + (r - q) T + A + rho M - rho^2 I / 2`` and
+    ``w = (1 - rho^2) I`` carry the path's dependence on every input (see
+    :func:`european_greeks_block`); ``ti[:, j]``, ``tm[:, j]`` hold the
+    tangents of ``I`` and ``M`` (Euler, ``tangents`` True).
     """
     value, p_l, curv, p_w = terms
-    spot, rate, maturity = market[M_SPOT], market[M_RATE], market[M_MATURITY]
+    spot, rate, maturity, inv_t, carry, kappa, sigma, vega_v0, vega_theta = mk
     one_rho2 = 1.0 - rho * rho
+    delta = p_l / spot
+    gamma = curv / (spot * spot)
     out[i, Q_PRICE] = value
-    out[i, Q_DELTA] = p_l / spot
-    out[i, Q_GAMMA] = curv / (spot * spot)
+    out[i, Q_DELTA] = delta
+    out[i, Q_GAMMA] = gamma
     out[i, Q_RHO_RATE] = maturity * (p_l - value)
     out[i, Q_RHO_DIV] = -maturity * p_l
     out[i, Q_RHO] = p_l * (mart - rho * int_var) - 2.0 * rho * int_var * p_w
-    out[i, Q_DELTA_LR] = out[i, Q_DELTA]
-    out[i, Q_GAMMA_LR] = out[i, Q_GAMMA]
+    out[i, Q_DELTA_LR] = delta
+    out[i, Q_GAMMA_LR] = gamma
     if not tangents:
         for q in (Q_V0, Q_KAPPA, Q_THETA_PARAM, Q_SIGMA, Q_THETA, Q_VEGA):
             out[i, q] = 0.0
         return
-    for p, q in ((0, Q_V0), (1, Q_KAPPA), (2, Q_THETA_PARAM), (3, Q_SIGMA)):
-        t_int, t_mart = ti[p, i], tm[p, i]
-        out[i, q] = p_l * (rho * t_mart - 0.5 * rho * rho * t_int) + p_w * one_rho2 * t_int
+    by_p = p_w * one_rho2
+    t_int, t_mart = ti[0, j], tm[0, j]
+    d_v0 = p_l * (rho * t_mart - 0.5 * rho * rho * t_int) + by_p * t_int
+    t_int, t_mart = ti[1, j], tm[1, j]
+    d_kappa = p_l * (rho * t_mart - 0.5 * rho * rho * t_int) + by_p * t_int
+    t_int, t_mart = ti[2, j], tm[2, j]
+    d_theta = p_l * (rho * t_mart - 0.5 * rho * rho * t_int) + by_p * t_int
+    t_int, t_mart = ti[3, j], tm[3, j]
+    d_sigma = p_l * (rho * t_mart - 0.5 * rho * rho * t_int) + by_p * t_int
     # dP/dT: through kappa T and sigma sqrt(T), then the explicit I ~ T, M ~ sqrt(T)
-    inv_t = 1.0 / maturity
     scale = (
-        p_l * (market[M_CARRY] + 0.5 * rho * mart - 0.5 * rho * rho * int_var)
-        + p_w * one_rho2 * int_var
+        p_l * (carry + 0.5 * rho * mart - 0.5 * rho * rho * int_var) + by_p * int_var
     ) * inv_t - rate * value
-    d_mat = market[M_KAPPA] * inv_t * out[i, Q_KAPPA]
-    d_mat += 0.5 * market[M_SIGMA] * inv_t * out[i, Q_SIGMA] + scale
+    d_mat = kappa * inv_t * d_kappa
+    d_mat += 0.5 * sigma * inv_t * d_sigma + scale
+    out[i, Q_V0] = d_v0
+    out[i, Q_KAPPA] = d_kappa
+    out[i, Q_THETA_PARAM] = d_theta
+    out[i, Q_SIGMA] = d_sigma
     out[i, Q_THETA] = -d_mat
-    out[i, Q_VEGA] = market[M_VEGA_V0] * out[i, Q_V0] + market[M_VEGA_THETA] * out[i, Q_THETA_PARAM]
+    out[i, Q_VEGA] = vega_v0 * d_v0 + vega_theta * d_theta
 
 
 @njit(cache=True, inline="always")
-def _pair_sums(values, size, anti):
-    """Sums and sums of squares of every column, then the :data:`CROSS` product sums.
+def _add_value(rows, anti, pair, sums, squares):
+    """Add one value to a block's sums: of every column, of its square, then the CROSS products.
 
-    Over pair averages with ``anti``.  ``squares`` has the length of ``sums``
-    (its last entries 0).
+    The value is the pair average of ``rows``'s two rows (paths ``i`` and
+    ``half + i``) with ``anti``, else its row 0.  Called in path order it
+    adds the numbers a table of the block's values summed column by column
+    would, in the same order, without the table (14 numbers a path written
+    and read back through the caches).  ``squares`` has the length of
+    ``sums`` (its last entries 0); ``pair`` is scratch of ``N_Q``.
     """
-    sums = np.zeros(N_SUMS)
-    squares = np.zeros(N_SUMS)
-    half = size // 2
-    used = half if anti else size
-    row = np.empty(N_Q)
-    for i in range(used):
-        for q in range(N_Q):
-            x = 0.5 * (values[i, q] + values[half + i, q]) if anti else values[i, q]
-            row[q] = x
-            sums[q] += x
-            squares[q] += x * x
-        for j in range(len(CROSS)):
-            sums[N_Q + j] += row[CROSS[j][0]] * row[CROSS[j][1]]
-    return sums, squares, used
+    for q in range(N_Q):
+        x = 0.5 * (rows[0, q] + rows[1, q]) if anti else rows[0, q]
+        pair[q] = x
+        sums[q] += x
+        squares[q] += x * x
+    for j in range(len(CROSS)):
+        sums[N_Q + j] += pair[CROSS[j][0]] * pair[CROSS[j][1]]
+
+
+@njit(cache=True, nogil=True, error_model="numpy")
+def _full_truncation_step(n, z, c, vim, tv, ti):
+    """One full-truncation Euler step of ``n`` paths and of their tangents, in one loop.
+
+    The price kernel's step with ``f1(v) = v`` and ``f2 = f3 = max(v, 0)``
+    (same bits), then :func:`_tangents_i`'s update with the coefficients of
+    :func:`_coefficients` at these maps' weights written out (``s1 = 1``,
+    ``s2 = s3 = 1{v > 0}``, ``f2(v) = max(v, 0)``): for a finite ``v`` the
+    general form only adds exact zeros to these, so the tangents keep their
+    bits at half the operations, and one pass over the paths replaces two.
+    ``vim`` holds v, I and M as rows: LLVM vectorises the loop with the state
+    in these three arrays (with all eleven rows in one array it does not).
+    """
+    dt, theta, kdt, sq_dt, sq = c[0], c[2], c[4], c[5], c[6]
+    vs, int_var, mart = vim[0], vim[1], vim[2]
+    tv0, tv1, tv2, tv3 = tv[0], tv[1], tv[2], tv[3]
+    ti0, ti1, ti2, ti3 = ti[0], ti[1], ti[2], ti[3]
+    for i in range(n):
+        x = vs[i]
+        out = max(x, 0.0)
+        root = math.sqrt(out)
+        zi = z[i]
+        root_z = root * zi
+        vs[i] = x + kdt * (theta - out) + sq * root_z
+        int_var[i] += out * dt
+        mart[i] += sq_dt * root_z
+        p = np.float64(x > 0.0)
+        g = 0.5 * p / max(root, _TINY_ROOT)
+        a = 1.0 - kdt * p + sq * zi * g
+        b = dt * p
+        e_k = dt * (theta - out)
+        e_s = sq_dt * root * zi
+        t = tv0[i]
+        ti0[i] += b * t
+        tv0[i] = a * t
+        t = tv1[i]
+        ti1[i] += b * t
+        tv1[i] = a * t + e_k
+        t = tv2[i]
+        ti2[i] += b * t
+        tv2[i] = a * t + kdt
+        t = tv3[i]
+        ti3[i] += b * t
+        tv3[i] = a * t + e_s
 
 
 @njit(cache=True, nogil=True, error_model="numpy")
 def _euler_paths(gen, size, anti, fmap, c, v0, steps):
     """The Euler paths of :func:`block_paths` (same draws, same bits) and their tangents.
 
-    Each step runs the price kernel's own loop (keeping each path's ``v``
-    and ``sqrt(f3(v))``), then the tangents' vector loop.
+    Full truncation runs :func:`_full_truncation_step`; the other maps run
+    the price kernel's own loop each step (keeping each path's ``v`` and
+    ``sqrt(f3(v))``), then the tangents' vector loops.
     """
-    v = np.full(size, v0)
-    int_var = np.zeros(size)
-    mart = np.zeros(size)
+    vim = np.zeros((3, size))  # v, I, M
+    vim[0, :] = v0
+    v, int_var, mart = vim[0], vim[1], vim[2]
     tv = np.zeros((N_TV, size))
     tv[0, :] = 1.0  # dv0/dv0
     tim = np.zeros((2 * N_TV, size))
@@ -420,6 +588,9 @@ def _euler_paths(gen, size, anti, fmap, c, v0, steps):
     f1, f2, f3 = fmap[0], fmap[1], fmap[2]
     for _ in range(steps):
         fill_normals(gen, z, size, anti)
+        if full:
+            _full_truncation_step(size, z, c, vim, tv, tim)
+            continue
         for i in range(size):
             x = v[i]
             out = fixed_variance(f3, x)
@@ -431,15 +602,17 @@ def _euler_paths(gen, size, anti, fmap, c, v0, steps):
             inp[IN_X, i] = x
             inp[IN_ROOT, i] = root
             v[i] = new
-        if not full:
-            _mart_step(size, inp, w, c, tv, tim)
+        _mart_step(size, inp, w, c, tv, tim)
         _tangents_i(size, inp, w, c, tv, tim)
     if full:
         _mart_tangents(size, v, v0, int_var, mart, c, dt * steps, tv, tim)
     return int_var, mart, tim[:N_TV], tim[N_TV:]
 
 
-@njit(cache=True, nogil=True)
+# numpy's error model: no division here can be by 0 (S0 > 0, T > 0, and the
+# conditional terms divide by the path's deviation only where it is > 0), and
+# without the checks the compiler keeps more in registers; no bit changes
+@njit(cache=True, nogil=True, error_model="numpy")
 def european_greeks_block(gen, size, anti, kind, fmap, c, v0, steps, market, rho):
     """Per-block sums of the conditional (mixing) estimator's price and Greeks.
 
@@ -490,22 +663,34 @@ def european_greeks_block(gen, size, anti, kind, fmap, c, v0, steps, market, rho
     log_spot, carry, sign = market[M_LOG_SPOT], market[M_CARRY], market[M_SIGN]
     disc, strike = market[M_DISC], market[M_STRIKE]
     log_k = math.log(strike)
-    values = np.empty((size, N_Q))
+    mk = _market_scalars(market)
     bad = 0
     for i in range(size):
         if not (math.isfinite(int_var[i]) and math.isfinite(mart[i])):
-            for q in range(N_Q):
-                values[i, q] = math.nan
             bad += 1
-            continue
-        # the operations of price_block's conditional branch, in its order
-        root = math.sqrt(max((1.0 - rho * rho) * int_var[i], 0.0))
-        log_fwd = log_spot + carry + adj[i] + rho * mart[i] - 0.5 * rho * rho * int_var[i]
-        terms = _conditional_terms(False, sign, 0.0, log_fwd, log_k, strike, root, disc)
-        _conditional_greeks(
-            values, i, terms, rho, int_var[i], mart[i], ti, tm, kind == EULER, market
-        )
-    sums, squares, used = _pair_sums(values, size, anti)
+    # each path (pair) is valued and added to the sums at once: a table of every
+    # path's values (14 a path) would be written and read back through the caches
+    sums = np.zeros(N_SUMS)
+    squares = np.zeros(N_SUMS)
+    rows = np.empty((2, N_Q))
+    pair = np.empty(N_Q)
+    half = size // 2
+    used = half if anti else size
+    for i in range(used):
+        for r in range(2 if anti else 1):
+            j = i + r * half
+            if not (math.isfinite(int_var[j]) and math.isfinite(mart[j])):
+                for q in range(N_Q):
+                    rows[r, q] = math.nan
+                continue
+            # the operations of price_block's conditional branch, in its order
+            root = math.sqrt(max((1.0 - rho * rho) * int_var[j], 0.0))
+            log_fwd = log_spot + carry + adj[j] + rho * mart[j] - 0.5 * rho * rho * int_var[j]
+            terms = _conditional_terms(False, sign, 0.0, log_fwd, log_k, strike, root, disc)
+            _conditional_greeks(
+                rows, r, terms, rho, int_var[j], mart[j], ti, tm, j, kind == EULER, mk
+            )
+        _add_value(rows, anti, pair, sums, squares)
     counts = np.zeros(2, dtype=np.int64)
     counts[0] = used
     counts[1] = bad
@@ -749,11 +934,11 @@ def exotic_greeks_block(
     rebate_paid = np.zeros(size)
     n_e = size if euler else 1
     n_b = size if barrier else 1
-    inp = np.zeros((6, max(n_e, n_b)))  # the vector loops' inputs (see IN_X)
+    inp = np.zeros((9, max(n_e, n_b)))  # the vector loops' inputs (see IN_X)
     z = inp[IN_Z] if euler else np.empty(size)
     inc_rho, inc_scale = inp[IN_RHO], inp[IN_SCALE]
     u = np.empty(size)
-    zx = np.empty(size)
+    zx = inp[IN_ZX] if euler and barrier else np.empty(size)
     tv = np.zeros((N_TV, n_e))
     tv[0, :] = 1.0
     n_c = n_e if digital else 1
@@ -864,6 +1049,11 @@ def exotic_greeks_block(
                     for p in range(N_TV):
                         last_ti[p, i] = b * tv[p, i]
                         last_tm[p, i] = m * tv[p, i]
+            elif euler:  # the increments follow in _barrier_tangents, a vector loop
+                inp[IN_SROOT, i] = s_root
+                inp[IN_DINT, i] = d_int
+                if k == 0:
+                    score[i] = zx[i] / s_root if s_root > 0.0 else 0.0
             else:
                 noise = zx[i] / s_root if s_root > 0.0 else 0.0
                 inp[IN_NOISE, i] = noise
@@ -891,27 +1081,35 @@ def exotic_greeks_block(
             rebate_paid[i] += rebate * lost * d_end
             if final or keep >= 1.0:
                 continue
-            near[n_near] = i
+            # kept in list order, not by path: the loop below then reads them in sequence
+            h = n_near
+            near[h] = i
             n_near += 1
-            b_d0[i], b_d1[i], b_e[i], b_keep[i], b_base[i], b_int[i] = d0, d1, e, keep, base, d_int
+            b_d0[h], b_d1[h], b_e[h], b_keep[h], b_base[h], b_int[h] = d0, d1, e, keep, base, d_int
 
         # the survival weight's tangents on the paths whose bridge moved (the log-price
         # and variance tangents still at the step's start)
         for h in range(n_near):
             i = near[h]
-            d0, d1, e, keep, base, d_int = b_d0[i], b_d1[i], b_e[i], b_keep[i], b_base[i], b_int[i]
+            d0, d1, e, keep, base, d_int = b_d0[h], b_d1[h], b_e[h], b_keep[h], b_base[h], b_int[h]
             for dn in range(N_D):
                 dd_int[dn] = 0.0
             for p in range(N_D - 3):
                 end_t[p] = tx[p, i]
             if euler:
-                _, b, m, _, _ = _coefficients(inp[IN_X, i], inp[IN_ROOT, i], z[i], w, c)
-                slope = -0.5 * b + rho * m + 0.5 * one_rho2 * b * inp[IN_NOISE, i]
+                x_i, root_i, z_i = inp[IN_X, i], inp[IN_ROOT, i], z[i]
+                noise, step_rho, step_scale = _euler_increments(
+                    d_int, root_i, z_i, zx[i], inp[IN_SROOT, i], c[5], rho, carry, inv_t
+                )
+                _, b, m, _, _ = _coefficients(x_i, root_i, z_i, w, c)
+                slope = -0.5 * b + rho * m + 0.5 * one_rho2 * b * noise
                 for p in range(N_TV):
                     end_t[p] += slope * tv[p, i]
                     dd_int[D_V0 + p] = b * tv[p, i]
-            end_t[D_RHO - 3] += inc_rho[i]
-            end_t[D_SCALE - 3] += inc_scale[i]
+            else:
+                step_rho, step_scale = inc_rho[i], inc_scale[i]
+            end_t[D_RHO - 3] += step_rho
+            end_t[D_SCALE - 3] += step_scale
             dd_int[D_SCALE] = d_int * inv_t
             smooth = keep > 0.0
             a = 2.0 / d_int if smooth else 0.0
@@ -954,8 +1152,9 @@ def exotic_greeks_block(
         # advance the tangents to the step's end
         if barrier and not final:
             if euler:
-                _tangents_x(size, inp, w, c, rho, one_rho2, tv, tx)
-            _shift_x(size, inp, tx)
+                _barrier_tangents(size, inp, fmap, w, c, rho, one_rho2, carry, inv_t, tv, tx)
+            else:
+                _shift_x(size, inp, tx)
         elif digital and euler:
             if not full:
                 _mart_step(size, inp, w, c, tv, tim)
@@ -967,7 +1166,7 @@ def exotic_greeks_block(
     d_pay = pay[P_DISC]
     knock_in = pay[P_KNOCK_IN] != 0.0
     spot = market[M_SPOT]
-    values = np.empty((size, N_Q))
+    mk = _market_scalars(market)
     log_k = math.log(strike)
     last_dt = times[steps] - times[steps - 1]
     last_t = times[steps - 1]
@@ -975,35 +1174,47 @@ def exotic_greeks_block(
     bad = 0
     for i in range(size):
         if not (math.isfinite(x[i]) and math.isfinite(v[i])):
-            for q in range(N_Q):
-                values[i, q] = math.nan
             bad += 1
-            continue
-        s_t = math.exp(x[i])
-        if digital:
-            log_fwd = x0 + market[M_CARRY] + adj_sum[i] + rho * mart[i]
-            log_fwd -= 0.5 * rho * rho * int_var[i]
-            root = math.sqrt(max(one_rho2 * int_var[i], 0.0))
-            terms = _conditional_terms(True, sign, cash, log_fwd, log_k, strike, root, d_pay)
-            _conditional_greeks(values, i, terms, rho, int_var[i], mart[i], ti, tm, euler, market)
-            # the price: the payoff on the path, by exotic_block's operations
-            values[i, Q_PRICE] = d_pay * (cash if sign * (s_t - strike) > 0.0 else 0.0)
-            continue
-        # the price, by exotic_block's operations
-        value = d_pay * max(sign * (s_t - strike), 0.0)
-        if knock_in:
-            value = value * (1.0 - alive[i]) + rebate * alive[i] * d_pay
-        else:
-            value = value * alive[i] + rebate_paid[i]
-        values[i, Q_PRICE] = value
-        _barrier_greeks(
-            values, i, knock_in, rebate, d_pay, sign, strike, side, log_b, one_rho2, rho, euler,
-            spot, maturity, inv_t, rate, mu, last_dt, last_t, disc[1], market,
-            last_alive[i], last_rebate[i], last_x[i], last_drift[i], last_int[i], last_mart[i],
-            last_ti, last_tm, tx, t_alive, t_rebate, alive_uu[i], rebate_uu[i],
-            score[i], k0[i], k0_total[i], k0_start[i], k0_cross[i], dy,
-        )  # fmt: skip
-    sums, squares, used = _pair_sums(values, size, anti)
+    # each path (pair) is valued and added to the sums at once, as in
+    # european_greeks_block
+    sums = np.zeros(N_SUMS)
+    squares = np.zeros(N_SUMS)
+    rows = np.empty((2, N_Q))
+    pair = np.empty(N_Q)
+    half = size // 2
+    used = half if anti else size
+    for h in range(used):
+        for r in range(2 if anti else 1):
+            i = h + r * half
+            if not (math.isfinite(x[i]) and math.isfinite(v[i])):
+                for q in range(N_Q):
+                    rows[r, q] = math.nan
+                continue
+            s_t = math.exp(x[i])
+            if digital:
+                log_fwd = x0 + market[M_CARRY] + adj_sum[i] + rho * mart[i]
+                log_fwd -= 0.5 * rho * rho * int_var[i]
+                root = math.sqrt(max(one_rho2 * int_var[i], 0.0))
+                terms = _conditional_terms(True, sign, cash, log_fwd, log_k, strike, root, d_pay)
+                _conditional_greeks(rows, r, terms, rho, int_var[i], mart[i], ti, tm, i, euler, mk)
+                # the price: the payoff on the path, by exotic_block's operations
+                rows[r, Q_PRICE] = d_pay * (cash if sign * (s_t - strike) > 0.0 else 0.0)
+                continue
+            # the price, by exotic_block's operations
+            value = d_pay * max(sign * (s_t - strike), 0.0)
+            if knock_in:
+                value = value * (1.0 - alive[i]) + rebate * alive[i] * d_pay
+            else:
+                value = value * alive[i] + rebate_paid[i]
+            rows[r, Q_PRICE] = value
+            _barrier_greeks(
+                rows, r, i, knock_in, rebate, d_pay, sign, strike, side, log_b, one_rho2, rho,
+                euler, spot, maturity, inv_t, rate, mu, last_dt, last_t, disc[1], market,
+                last_alive[i], last_rebate[i], last_x[i], last_drift[i], last_int[i], last_mart[i],
+                last_ti, last_tm, tx, t_alive, t_rebate, alive_uu[i], rebate_uu[i],
+                score[i], k0[i], k0_total[i], k0_start[i], k0_cross[i], dy,
+            )  # fmt: skip
+        _add_value(rows, anti, pair, sums, squares)
     counts = np.zeros(2, dtype=np.int64)
     counts[0] = used
     counts[1] = bad
@@ -1012,12 +1223,12 @@ def exotic_greeks_block(
 
 @njit(cache=True, error_model="numpy")
 def _barrier_greeks(
-    values, i, knock_in, rebate, d_pay, sign, strike, side, log_b, one_rho2, rho, euler,
+    values, row, i, knock_in, rebate, d_pay, sign, strike, side, log_b, one_rho2, rho, euler,
     spot, maturity, inv_t, rate, mu, last_dt, last_t, d_first, market,
     w, reb, xp, drift, d_int, d_mart, last_ti, last_tm, tx, t_alive, t_rebate, w_uu, reb_uu,
     score, k0, k0_total, k0_start, k0_cross, dy,
 ):  # fmt: skip
-    """Row ``i`` of ``values``: a barrier path's Greeks from its smoothed value.
+    """Row ``row`` of ``values``: barrier path ``i``'s Greeks from its smoothed value.
 
     ``w``, ``reb`` are the survival weight and rebates before the last step,
     ``xp``, ``drift``, ``d_int``, ``d_mart`` the last step's start and
@@ -1137,8 +1348,8 @@ def _barrier_greeks(
         smooth_y = d_pay * w * kept + reb
         big_a, big_a_u = rebate * d_first, 0.0
     g = dy[D_U]
-    values[i, Q_DELTA] = g / spot
-    values[i, Q_GAMMA] = (second - g) / (spot * spot)
+    values[row, Q_DELTA] = g / spot
+    values[row, Q_GAMMA] = (second - g) / (spot * spot)
     # the likelihood-ratio estimators: Y = A + k0 B with A and B free of x_0 = u
     if score != 0.0 and k0 > _LEAST_K0:
         big_b = (smooth_y - big_a) / k0
@@ -1151,15 +1362,15 @@ def _barrier_greeks(
     else:  # no noise on the first step (or a single step): the pathwise estimators
         first_lr = g
         second_lr = second
-    values[i, Q_DELTA_LR] = first_lr / spot
-    values[i, Q_GAMMA_LR] = (second_lr - g) / (spot * spot)
-    values[i, Q_RHO_RATE] = dy[D_R]
-    values[i, Q_RHO_DIV] = dy[D_Q]
-    values[i, Q_V0] = dy[D_V0]
-    values[i, Q_KAPPA] = dy[D_KAPPA]
-    values[i, Q_THETA_PARAM] = dy[D_THETA]
-    values[i, Q_SIGMA] = dy[D_SIGMA]
-    values[i, Q_RHO] = dy[D_RHO]
+    values[row, Q_DELTA_LR] = first_lr / spot
+    values[row, Q_GAMMA_LR] = (second_lr - g) / (spot * spot)
+    values[row, Q_RHO_RATE] = dy[D_R]
+    values[row, Q_RHO_DIV] = dy[D_Q]
+    values[row, Q_V0] = dy[D_V0]
+    values[row, Q_KAPPA] = dy[D_KAPPA]
+    values[row, Q_THETA_PARAM] = dy[D_THETA]
+    values[row, Q_SIGMA] = dy[D_SIGMA]
+    values[row, Q_RHO] = dy[D_RHO]
     d_mat = market[M_KAPPA] * inv_t * dy[D_KAPPA] + 0.5 * market[M_SIGMA] * inv_t * dy[D_SIGMA]
-    values[i, Q_THETA] = -(d_mat + dy[D_SCALE])
-    values[i, Q_VEGA] = market[M_VEGA_V0] * dy[D_V0] + market[M_VEGA_THETA] * dy[D_THETA]
+    values[row, Q_THETA] = -(d_mat + dy[D_SCALE])
+    values[row, Q_VEGA] = market[M_VEGA_V0] * dy[D_V0] + market[M_VEGA_THETA] * dy[D_THETA]

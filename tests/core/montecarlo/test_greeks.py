@@ -93,14 +93,14 @@ def _within(greeks, reference, names, k=K_SE):
 @pytest.mark.parametrize(
     "scheme", ["euler_full", "euler_reflect", "qe", "qe_martingale", "exact_variance"]
 )
-def test_a_european_prices_to_the_bit_what_mc_price_conditional_prices(scheme):
+@pytest.mark.parametrize("antithetic", [True, False])
+def test_a_european_prices_to_the_bit_what_mc_price_conditional_prices(scheme, antithetic):
     # more than 8 blocks: numpy's summation order over the blocks must be mc_price's too
-    args = {"scheme": scheme, "paths": 9 * BLOCK + 1000, "seed": 5}
+    args = {"scheme": scheme, "paths": 9 * BLOCK + 1000, "seed": 5, "antithetic": antithetic}
     g = mc_greeks(FO, 100.0, EuropeanOption("put", 95.0, 0.75), 0.02, 0.01, steps=8, **args)
     n_steps = 6  # ceil(8 x 0.75)
     mc = mc_price(
-        FO, 100.0, 95.0, 0.75, 0.02, 0.01, "put", steps=n_steps, antithetic=True,
-        conditional=True, **args,
+        FO, 100.0, 95.0, 0.75, 0.02, 0.01, "put", steps=n_steps, conditional=True, **args,
     )  # fmt: skip
     assert g.price == mc.price
     assert g.price_error == mc.std_error
@@ -117,8 +117,10 @@ def test_a_european_prices_to_the_bit_what_mc_price_conditional_prices(scheme):
     ],
     ids=["doc", "uip-rebate", "digital"],
 )
-def test_a_barrier_or_digital_prices_to_the_bit_what_mc_exotic_prices(scheme, product):
+@pytest.mark.parametrize("antithetic", [True, False])
+def test_a_barrier_or_digital_prices_to_the_bit_what_mc_exotic_prices(scheme, product, antithetic):
     args = {"scheme": scheme, "steps": 24, "paths": 9 * BLOCK + 1000, "seed": 8}
+    args["antithetic"] = antithetic
     g = mc_greeks(FO, 100.0, product, 0.02, 0.01, **args)
     plain = mc_exotic(FO, 100.0, product, 0.02, 0.01, control="none", **args)
     assert g.price == plain.price and g.price_error == plain.std_error
