@@ -151,6 +151,7 @@ def _number(option: str, value):
 
 def print_greeks(params: HestonParams, option: OptionSpec, out) -> None:
     """Print the option's certified Fourier price and Greeks, each with its unit."""
+    from rootvar.addin.functions.greeks import fourier_route
     from rootvar.core import heston_greeks
 
     o = option
@@ -162,8 +163,8 @@ def print_greeks(params: HestonParams, option: OptionSpec, out) -> None:
         file=out,
     )
     print(
-        "  by Fourier (certified COS; derivatives of the characteristic function, nothing "
-        "bumped), each per unit of its input:",
+        f"  by Fourier (certified, {fourier_route(g)} route; derivatives of the characteristic "
+        "function, nothing bumped), each per unit of its input:",
         file=out,
     )
     print(f"    {'':<22}{'value':>14}{'error estimate':>16}  unit", file=out)
@@ -178,7 +179,7 @@ def print_greeks(params: HestonParams, option: OptionSpec, out) -> None:
         file=out,
     )
     for note in g.notes:
-        if " not certified: " in note:
+        if " not certified: " in note or note.startswith("handed over to COS"):
             print(f"    {note}", file=out)
 
 

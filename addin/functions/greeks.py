@@ -41,6 +41,7 @@ __all__ = [
     "NOT_CERTIFIED",
     "ROOTVAR_GREEKS",
     "ROOTVAR_GREEKS_CHECK",
+    "fourier_route",
 ]
 
 #: Methods ROOTVAR_GREEKS takes (spaces or hyphens for underscores).
@@ -386,7 +387,7 @@ def ROOTVAR_GREEKS_CHECK(
     return rows
 
 
-def _fourier_route(g) -> str:
+def fourier_route(g) -> str:
     """The Fourier route a result took, as its estimators name it: contour or COS."""
     return "contour" if any("contour" in e for e in g.estimators.values()) else "COS"
 
@@ -394,14 +395,14 @@ def _fourier_route(g) -> str:
 def _method_words(g) -> str:
     """A result's method in words, with the Fourier route where it is Fourier."""
     if g.method == "fourier":
-        return f"Fourier ({_fourier_route(g)})"
+        return f"Fourier ({fourier_route(g)})"
     return _METHOD_WORDS[g.method]
 
 
 def _price_how(g) -> str:
     """How a result's price was found, with the Fourier route where it is Fourier."""
     if g.method == "fourier":
-        if _fourier_route(g) == "contour":
+        if fourier_route(g) == "contour":
             return "certified contour integral"
         return "certified COS series"
     return _PRICE_HOW[g.method]
