@@ -487,6 +487,14 @@ def build_control(path: Path) -> None:
             models.cell(row=i, column=j, value=v).fill = INPUT
         for j, kind in enumerate(model_formats, start=3):
             models.cell(row=i, column=j).number_format = FORMATS[kind]
+        for j in (11, 12):  # the lists of numbers are text: a space from rho's right edge
+            models.cell(row=i, column=j).alignment = Alignment(horizontal="left", indent=1)
+    for j in range(3, 13):  # headers over their columns: numbers right, the lists' text left
+        header = models.cell(row=1, column=j)
+        side, indent = ("right", 0) if j <= 10 else ("left", 1)
+        header.alignment = Alignment(
+            horizontal=side, vertical=header.alignment.vertical, wrap_text=True, indent=indent
+        )
     models.freeze_panes = "C2"
     print_setup(models, "1:1")
     for title in ("Results", "History"):
