@@ -402,10 +402,12 @@ def heston_price(
     quadrature. SSRN 3231626.
     """
     if method == "contour" or (method == "auto" and CONTOUR_STRIKES >= 1):
-        if type(strike) is np.ndarray:
-            price = _strip_by_contour(params, spot, strike, maturity, rate, div_yield, kind)
-        else:
+        if type(strike) is not np.ndarray:
             price = _one_by_contour(params, spot, strike, maturity, rate, div_yield, kind)
+        elif type(maturity) is np.ndarray:
+            price = _surface_by_contour(params, spot, strike, maturity, rate, div_yield, kind)
+        else:
+            price = _strip_by_contour(params, spot, strike, maturity, rate, div_yield, kind)
         if price is not None:
             return price
     details = heston_price_details(params, spot, strike, maturity, rate, div_yield, kind, method)
@@ -472,6 +474,66 @@ def _strip_by_contour(params, spot, strike, maturity, rate, div_yield, kind):
         return None
     times = np.full(n, maturity)  # as the general path holds them
     return _inside_bounds(table[0, :n], spot, strike, times, rate, div_yield, put)
+
+
+def _surface_by_contour(params, spot, strike, maturity, rate, div_yield, kind):
+    """A surface (maturities as a column, ``m x 1``, strikes as a row or an ``m x n``
+    grid, float arrays) by the contour route, with the validation cut to what
+    that takes, or None.
+
+    The same kernel calls, in the same order, and the same bounds as
+    :func:`heston_price_details` (so the same bits for ascending maturities),
+    without building the per-option details a surface call does not return
+    (routes, reasons as text, node counts): measured 16-19% of the 10 x 101
+    surface's time on the Fang & Oosterlee and Andersen case I sets (fresh
+    maturities, medians of alternated calls, load 1.1 on 2 cores: 6.19 against
+    4.99 ms and 6.87 against 5.74 ms).  None when an argument is
+    not of that form or breaks its rule, when two rows share a maturity (the
+    general path prices them as one strip) or a maturity has more than
+    ``CONTOUR_STRIKES`` strikes, or when a strike is not certified: the
+    general path then says which or hands it over.
+    """
+    market = _plain_market(params, spot, 1.0, rate, div_yield, kind)
+    if market is None or strike.dtype != np.float64 or maturity.dtype != np.float64:
+        return None
+    if maturity.ndim != 2 or maturity.shape[1] != 1 or not 1 <= strike.ndim <= 2:
+        return None
+    m, n = maturity.shape[0], strike.shape[-1]
+    if strike.ndim == 2 and strike.shape[0] not in (1, m):
+        return None
+    # a handful of maturities: Python's floats check them faster than numpy calls
+    times = maturity[:, 0].tolist()
+    if not (
+        0 < m
+        and 0 < n <= CONTOUR_STRIKES
+        and min(times) > 0.0
+        and math.isfinite(sum(times))
+        and len(set(times)) == m
+        and strike.min() > 0.0
+        and math.isfinite(strike.sum())
+    ):
+        return None
+    spot, _, rate, div_yield = market
+    if not _CONTOUR_NOTICED:
+        _notice_contour()
+    put = kind == "put"
+    if strike.ndim == 1 or strike.shape[0] == 1:
+        row = np.ascontiguousarray(strike.reshape(n))
+        rows = [row] * m
+        flat_k = np.empty(m * n)
+        flat_k.reshape(m, n)[:] = row  # np.tile's copy at a fifth of its cost
+    else:
+        flat_k = np.ascontiguousarray(strike).reshape(m * n)
+        rows = [flat_k[i * n : (i + 1) * n] for i in range(m)]
+    tables = np.empty((m, STRIP_ROWS, n + 1))
+    for i in range(m):
+        strip_table(params, spot, rows[i], times[i], rate, div_yield, put, out=tables[i])
+    if (tables[:, 5, :n] != CERTIFIED).any():
+        return None
+    # as the general path holds them (flat, row by row), so np.exp sees the same arrays
+    flat_t = np.repeat(maturity[:, 0], n)
+    price = _inside_bounds(tables[:, 0, :n].ravel(), spot, flat_k, flat_t, rate, div_yield, put)
+    return price.reshape(m, n)
 
 
 def _one_by_contour(params, spot, strike, maturity, rate, div_yield, kind):

@@ -11,6 +11,7 @@ from scipy.integrate import solve_ivp
 
 import rootvar.core.fourier.contour as contour
 import rootvar.core.fourier.contour_kernels as kernels
+import rootvar.core.fourier.cos as cos_route
 from rootvar.core import (
     FourierCheckError,
     HestonParams,
@@ -609,6 +610,57 @@ def test_one_price_and_short_strips_give_the_bits_of_the_details_path():
     params, maturity, strike = HAND_OVER[0]
     both = heston_price(params, SPOT, np.array([100.0, strike]), maturity)
     assert np.all(np.isfinite(both))
+
+
+def test_a_surface_gives_the_bits_of_the_details_path(monkeypatch):
+    # heston_price's lean path for maturities as a column (strikes as a row or
+    # a grid) and heston_price_details (the same kernel calls, in the same
+    # order, and the same bounds) agree bit for bit, calls and puts, at any rates
+    rng = np.random.default_rng(22)
+    for _ in range(20):
+        m, n = int(rng.integers(1, 6)), int(rng.integers(1, 40))
+        t = np.sort(np.exp(rng.uniform(-5.0, 3.0, (m, 1))), axis=0)
+        r, q = float(rng.uniform(-0.01, 0.06)), float(rng.uniform(0.0, 0.04))
+        row = np.sort(rng.uniform(30.0, 300.0, n))
+        grid = np.sort(rng.uniform(30.0, 300.0, (m, n)), axis=1)
+        for strike, kind in ((row, "call"), (grid, "put"), (row[None, :], "put")):
+            price = heston_price(ANDERSEN_I, SPOT, strike, t, r, q, kind)
+            assert price.shape == (m, n)
+            np.testing.assert_array_equal(
+                price, heston_price_details(ANDERSEN_I, SPOT, strike, t, r, q, kind).price
+            )
+    surface = (SURFACE_STRIKES, SURFACE_MATURITIES[:, None])
+    for params in (FO, ANDERSEN_I):
+        np.testing.assert_array_equal(
+            heston_price(params, SPOT, *surface), heston_price_details(params, SPOT, *surface).price
+        )
+        # the lean path priced it: without the general one the surface still comes
+        with monkeypatch.context() as patch:
+            patch.setattr(cos_route, "heston_price_details", None)
+            np.testing.assert_array_equal(
+                heston_price(params, SPOT, *surface),
+                heston_price(params, SPOT, *surface, method="contour"),
+            )
+    # what the lean path leaves to the general one: a repeated maturity (one
+    # strip there), a row wider than CONTOUR_STRIKES (COS), bad input, a hand-over
+    twice = np.array([[1.0], [1.0]])
+    both = heston_price_details(FO, SPOT, STRIKES, twice)
+    np.testing.assert_array_equal(heston_price(FO, SPOT, STRIKES, twice), both.price)
+    wide = np.linspace(50.0, 200.0, CONTOUR_STRIKES + 1)
+    cos = heston_price_details(FO, SPOT, wide, np.array([[0.5], [2.0]]))
+    assert set(cos.route.ravel().tolist()) == {"cos"}
+    np.testing.assert_array_equal(heston_price(FO, SPOT, wide, np.array([[0.5], [2.0]])), cos.price)
+    for bad, name in (
+        (dict(strike=np.array([100.0, -1.0])), "strike"),
+        (dict(maturity=np.array([[1.0], [np.nan]])), "maturity"),
+        (dict(maturity=np.array([[1.0], [-2.0]])), "maturity"),
+    ):
+        args = dict(strike=STRIKES, maturity=np.array([[1.0], [2.0]])) | bad
+        with pytest.raises(InputError, match=name):
+            heston_price(FO, SPOT, args["strike"], args["maturity"])
+    params, maturity, strike = HAND_OVER[0]
+    handed = heston_price(params, SPOT, np.array([100.0, strike]), np.array([[maturity], [1.0]]))
+    assert handed.shape == (2, 2) and np.all(np.isfinite(handed))
 
 
 # --- identities ---
