@@ -43,7 +43,12 @@ Greeks scheme, has loops of its own with :func:`_coefficients` written out at
 its weights, and a European's variance step and tangents share one pass; each
 path's values go into the block's sums as they are formed, with no table of
 them.  These change the order in which paths are visited, never the
-operations on one path, so no number changes.
+operations on one path, so no number changes.  Some work is left out where
+an identity gives its bits: without a rebate (or for a knock-in, whose
+Greeks never read them) the rebates' tangents, which stay +0.0; ``exp(0)``
+and ``N(+-inf)`` in the last step's Gaussian integrals; the last step's
+``ln K`` and ``b``, formed once a path rather than once a stencil point;
+full truncation's ``dI = max(v, 0) dt`` formed again rather than stored.
 """
 
 from __future__ import annotations
@@ -346,13 +351,15 @@ def _barrier_tangents(n, inp, fmap, w, c, rho, one_rho2, carry, inv_t, tv, tx):
         return
     dt, theta, kdt, sq_dt, sq = c[0], c[2], c[4], c[5], c[6]
     xo, ro, z = inp[IN_X], inp[IN_ROOT], inp[IN_Z]
-    zx, sr, di = inp[IN_ZX], inp[IN_SROOT], inp[IN_DINT]
+    zx, sr = inp[IN_ZX], inp[IN_SROOT]
     tv0, tv1, tv2, tv3 = tv[0], tv[1], tv[2], tv[3]
     tx0, tx1, tx2, tx3, tx_rho, tx_scale = tx[0], tx[1], tx[2], tx[3], tx[4], tx[5]
     for i in range(n):
         x, root, zi = xo[i], ro[i], z[i]
+        # the step's dI, formed again as the step loop forms it (f3 = max(v, 0)): one
+        # stream fewer to store there and to load here
         noise, inc_rho, inc_scale = _euler_increments(
-            di[i], root, zi, zx[i], sr[i], sq_dt, rho, carry, inv_t
+            max(x, 0.0) * dt, root, zi, zx[i], sr[i], sq_dt, rho, carry, inv_t
         )
         p = np.float64(x > 0.0)
         g = 0.5 * p / max(root, _TINY_ROOT)
@@ -710,9 +717,19 @@ def _erfcx(x):
 
 @njit(cache=True, error_model="numpy")
 def _ndtr_diff(a, b):
-    """``N(b) - N(a)`` for ``a <= b``, from the upper tails when both are positive."""
+    """``N(b) - N(a)`` for ``a <= b``, from the upper tails when both are positive.
+
+    An infinite end is not evaluated: ``normal_cdf`` gives exactly 0 at
+    ``-inf`` and 1 at ``+inf`` (``erfc(inf) = 0``), so the constants have its bits.
+    """
     if a > 0.0:
+        if b == math.inf:
+            return normal_cdf(-a)
         return normal_cdf(-a) - normal_cdf(-b)
+    if b == math.inf:
+        return 1.0 - normal_cdf(a)
+    if a == -math.inf:
+        return normal_cdf(b)
     return normal_cdf(b) - normal_cdf(a)
 
 
@@ -763,6 +780,8 @@ def _gauss_exp(c, lo, hi, mu, s):
     if abs(c) <= 2.0:
         shift = mu + c * s * s
         lo_h, hi_h = (lo - shift) / s, (hi - shift) / s
+        if c == 0.0:  # exp(0 x) is exactly 1 for a finite x: no exp, the same bits
+            return _ndtr_diff(lo_h, hi_h)
         return math.exp(c * (mu + 0.5 * c * s * s)) * _ndtr_diff(lo_h, hi_h)
     if c < 0.0:
         return _tail_up(c, lo, mu, s) - _tail_up(c, hi, mu, s)
@@ -770,7 +789,7 @@ def _gauss_exp(c, lo, hi, mu, s):
 
 
 @njit(cache=True, error_model="numpy")
-def _last_step(xp, drift, d_int, one_rho2, side, log_b, sign, strike, knock_in):
+def _last_step(xp, drift, d_int, one_rho2, side, log_b, sign, strike, knock_in, k_rel, spot_b):
     """The last step of a barrier path integrated over its log-price normal, in closed form.
 
     Given the path up to the last step's start ``xp`` (log-price) and the
@@ -783,11 +802,10 @@ def _last_step(xp, drift, d_int, one_rho2, side, log_b, sign, strike, knock_in):
     ``y = x_n - ln b ~ N(mu, s^2)`` each is a sum of
     ``E[e^{c y} 1{lo < y < hi}]``.  The price kernel's cut-off (``keep = 1``
     once ``2 d0 d1 >= 38 dI``, where ``1 - keep < 6e-9``) is not applied: the
-    difference is below that.
+    difference is below that.  ``k_rel = ln K - ln b`` and ``spot_b = b`` are
+    the caller's (the same for every call on a path).
     """
     mu = xp + drift - log_b
-    k_rel = math.log(strike) - log_b
-    spot_b = math.exp(log_b)
     pay_lo, pay_hi = (k_rel, math.inf) if sign > 0.0 else (-math.inf, k_rel)
     live_lo, live_hi = (0.0, math.inf) if side > 0.0 else (-math.inf, 0.0)
     d0 = side * (xp - log_b)
@@ -812,16 +830,17 @@ def _last_step(xp, drift, d_int, one_rho2, side, log_b, sign, strike, knock_in):
 
 
 @njit(cache=True, error_model="numpy")
-def _last_step_far(m, s, sign, strike):
+def _last_step_far(m, s, sign, strike, log_k):
     """``E[pay]`` of the last step, ``x_n ~ N(m, s^2)``, and its derivatives: Black's formula.
 
     Returns ``(P, dP/dm, d2P/dm2, dP/d(s^2))``.  Used where the step starts and
     ends so far from the barrier (see :func:`_barrier_greeks`) that the
-    bridge and the knock side carry less than ``e^{-40}`` of it.
+    bridge and the knock side carry less than ``e^{-40}`` of it.  ``log_k`` is
+    ``ln K``, the caller's.
     """
     var = s * s
     fwd = math.exp(m + 0.5 * var)
-    d1 = (m + var - math.log(strike)) / s
+    d1 = (m + var - log_k) / s
     d2 = d1 - s
     nd1 = normal_cdf(sign * d1)
     pdf = math.exp(-0.5 * d1 * d1) * _INV_SQRT_2PI
@@ -944,9 +963,11 @@ def exotic_greeks_block(
     n_c = n_e if digital else 1
     tim = np.zeros((2 * N_TV, n_c))
     ti, tm = tim[:N_TV], tim[N_TV:]
-    int_var = np.zeros(size)
-    mart = np.zeros(size)
-    adj_sum = np.zeros(size)
+    # the digital's sums of the step quantities (a barrier's Greeks do not read them)
+    n_d = size if digital else 1
+    int_var = np.zeros(n_d)
+    mart = np.zeros(n_d)
+    adj_sum = np.zeros(n_d)
     # log-price tangents (rows: v0, kappa, theta, sigma, rho, scale) and this step's
     # rho and scale increments
     tx = np.zeros((N_D - 3, n_b))
@@ -980,6 +1001,10 @@ def exotic_greeks_block(
     k0_cross = np.zeros(n_b)  # (d/du)_0 of d k0 / du
     dd_int = np.zeros(N_D)
     end_t = np.zeros(N_D - 3)
+    # without a rebate the rebates' tangents stay +0.0 (each update adds 0 x a finite
+    # number, a signed zero, to +0.0), and a knock-in's Greeks never read them (its
+    # rebate is paid at expiry), so their updates are left out: the same bits
+    paid = rebate != 0.0 and pay[P_KNOCK_IN] == 0.0
     for k in range(steps):
         c = consts[which[k]]
         dt, kappa, theta, sigma = c[0], c[1], c[2], c[3]
@@ -1051,7 +1076,8 @@ def exotic_greeks_block(
                         last_tm[p, i] = m * tv[p, i]
             elif euler:  # the increments follow in _barrier_tangents, a vector loop
                 inp[IN_SROOT, i] = s_root
-                inp[IN_DINT, i] = d_int
+                if not full:  # full truncation's is formed again in _barrier_tangents
+                    inp[IN_DINT, i] = d_int
                 if k == 0:
                     score[i] = zx[i] / s_root if s_root > 0.0 else 0.0
             else:
@@ -1101,7 +1127,13 @@ def exotic_greeks_block(
                 noise, step_rho, step_scale = _euler_increments(
                     d_int, root_i, z_i, zx[i], inp[IN_SROOT, i], c[5], rho, carry, inv_t
                 )
-                _, b, m, _, _ = _coefficients(x_i, root_i, z_i, w, c)
+                if full:  # _coefficients at full truncation's weights, as _barrier_tangents
+                    p_i = np.float64(x_i > 0.0)
+                    g_i = 0.5 * p_i / max(root_i, _TINY_ROOT)
+                    b = c[0] * p_i
+                    m = c[5] * z_i * g_i
+                else:
+                    _, b, m, _, _ = _coefficients(x_i, root_i, z_i, w, c)
                 slope = -0.5 * b + rho * m + 0.5 * one_rho2 * b * noise
                 for p in range(N_TV):
                     end_t[p] += slope * tv[p, i]
@@ -1122,9 +1154,10 @@ def exotic_greeks_block(
                 k0_cross[i] = a * e * (1.0 - a * d1 * (d0 + d1))
             lost = base * (1.0 - keep)
             alive_u = t_alive[i, D_U]
-            lost_uu = alive_uu[i] * (1.0 - keep) - 2.0 * alive_u * keep_u - base * keep_uu
+            if paid:
+                lost_uu = alive_uu[i] * (1.0 - keep) - 2.0 * alive_u * keep_u - base * keep_uu
+                rebate_uu[i] += rebate * lost_uu * d_end
             alive_uu[i] = alive_uu[i] * keep + 2.0 * alive_u * keep_u + base * keep_uu
-            rebate_uu[i] += rebate * lost_uu * d_end
             scale = 2.0 * e / d_int if smooth else 0.0
             ratio = d0 * d1 / d_int if smooth else 0.0
             for dn in range(N_D):
@@ -1139,8 +1172,11 @@ def exotic_greeks_block(
                     else:
                         dd0, dd1 = tx[dn - 3, i], end_t[dn - 3]
                     dk = _keep_slope(scale, d0, d1, ratio, side * dd0, side * dd1, dd_int[dn])
-                d_lost = t_alive[i, dn] * (1.0 - keep) - base * dk
-                t_alive[i, dn] = t_alive[i, dn] * keep + base * dk
+                t_before = t_alive[i, dn]
+                t_alive[i, dn] = t_before * keep + base * dk
+                if not paid:
+                    continue
+                d_lost = t_before * (1.0 - keep) - base * dk
                 # discount to the step's end, e^{-r t1}, t1 a fixed share of T
                 d_disc = 0.0
                 if dn == D_R:
@@ -1236,7 +1272,6 @@ def _barrier_greeks(
     differentiated by central differences in its four inputs (a smooth
     function: their errors are far below the Monte Carlo error).
     """
-    args = (side, log_b, sign, strike, knock_in)
     s = math.sqrt(max(one_rho2 * d_int, 0.0))
     d0 = side * (xp - log_b)
     reach = side * (xp + drift - log_b) - _FAR_DEVIATIONS * s  # the end's least plausible distance
@@ -1244,13 +1279,15 @@ def _barrier_greeks(
         f = fx = fxx = fd = fi = fo = (0.0, 0.0, 0.0)
     elif s > 0.0 and d0 > 0.0 and reach > 0.0 and 2.0 * d0 * reach > _FAR_EXP * d_int:
         # far from the barrier: the step is a vanilla's (Black), whole on the live side
-        value, slope, curv, by_var = _last_step_far(xp + drift, s, sign, strike)
+        value, slope, curv, by_var = _last_step_far(xp + drift, s, sign, strike, math.log(strike))
         f = (value, 1.0, value)
         fx = fd = (slope, 0.0, slope)
         fxx = (curv, 0.0, curv)
         fi = (by_var * one_rho2, 0.0, by_var * one_rho2)
         fo = (by_var * d_int, 0.0, by_var * d_int)
     else:
+        # the log and exp every _last_step of the stencil reads, formed once
+        args = (side, log_b, sign, strike, knock_in, math.log(strike) - log_b, math.exp(log_b))
         hx = _FD_SHARE * math.sqrt(max(one_rho2 * d_int, 0.0))
         if hx == 0.0:
             hx = _FD_SHARE * 1e-3
