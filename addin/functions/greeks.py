@@ -78,8 +78,10 @@ _METHOD_WORDS = {
     "monte_carlo": "Monte Carlo",
     "pde": "PDE (finite differences)",
 }
+#: How a price was found: by the Fourier route taken (:func:`fourier_route`), else the method.
 _PRICE_HOW = {
-    "fourier": "certified Fourier price",
+    "contour": "certified contour integral",
+    "COS": "certified COS series",
     "monte_carlo": "the Greeks' own paths",
     "pde": "ADI grid, refined twice",
 }
@@ -401,11 +403,7 @@ def _method_words(g) -> str:
 
 def _price_how(g) -> str:
     """How a result's price was found, with the Fourier route where it is Fourier."""
-    if g.method == "fourier":
-        if fourier_route(g) == "contour":
-            return "certified contour integral"
-        return "certified COS series"
-    return _PRICE_HOW[g.method]
+    return _PRICE_HOW[fourier_route(g) if g.method == "fourier" else g.method]
 
 
 def _settle_text(settle: int):

@@ -49,6 +49,12 @@ ESTIMATORS = {
 }
 
 
+def tolerance_row(spot, tol):
+    """The kernel's tolerances: the price's (``TOLERANCE x spot``), then each Greek's of
+    ``OUTPUTS`` from ``tol`` (Greek name -> tolerance in its unit), as a writeable array."""
+    return np.array([TOLERANCE * spot] + [tol[name] for name in OUTPUTS[1:]])
+
+
 def greek_table(params, spot, strike, maturity, rate, div_yield, put, tol):
     """The kernel's table for already validated arguments.
 
@@ -136,7 +142,7 @@ def greek_table(params, spot, strike, maturity, rate, div_yield, put, tol):
     model = np.array([p.kappa, p.theta, p.vol_of_vol, p.rho, p.v0])
     market = np.array([spot, maturity, rate, div_yield, 1.0 if put else 0.0, MAX_TILT, 0.0])
     if isinstance(tol, dict):
-        tol = np.array([TOLERANCE * spot] + [tol[name] for name in OUTPUTS[1:]])
+        tol = tolerance_row(spot, tol)
     out = np.empty((ROWS, strike.size + 1))
     contour_greeks(model, market, strike, tol, out)
     return out

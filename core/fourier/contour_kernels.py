@@ -435,7 +435,7 @@ def _cell_bounds(cell, width, big_c, rho, damp):
 
 
 @njit(cache=True, inline="always")
-def _finish(value, alpha, k, put, scale):
+def finish_price(value, alpha, k, put, scale):
     """Price from the integral: the residues crossed (Lord & Kahl 2007, eq. 3.6) and the clip."""
     ek = math.exp(k)  # K / F
     if alpha > 0.0:
@@ -451,7 +451,7 @@ def _finish(value, alpha, k, put, scale):
 
 
 @njit(cache=True, inline="always")
-def _maturity_scales(t, kappa, theta, sigma, rho, v0):
+def maturity_scales(t, kappa, theta, sigma, rho, v0):
     """``(var, freq, big_c, damp, bend)`` of one maturity (see ``contour_strip``)."""
     # expected integrated variance: sets the frequency scale of the DE map
     kt = kappa * t
@@ -497,7 +497,7 @@ def contour_strip(model, spot, strike, t, rate, div_yield, put, tol_x_spot, max_
     forward = spot * math.exp((rate - div_yield) * t)
     scale = math.exp(-rate * t) * forward  # price = scale * (undiscounted price / F)
     tol_int = math.pi * tol_x_spot * spot / scale
-    _, freq, big_c, damp, bend = _maturity_scales(t, kappa, theta, sigma, rho, v0)
+    _, freq, big_c, damp, bend = maturity_scales(t, kappa, theta, sigma, rho, v0)
     ends = np.full(2, math.nan)
     for m in range(n):
         k = math.log(strike[m] / forward)
@@ -517,7 +517,7 @@ def contour_strip(model, spot, strike, t, rate, div_yield, put, tol_x_spot, max_
         status[m] = code
         error[m] = scale * est / math.pi
         if code == CERTIFIED:
-            price[m] = _finish(value, a, k, put, scale)
+            price[m] = finish_price(value, a, k, put, scale)
     out[0, n] = ends[0]
     out[1, n] = ends[1]
 
@@ -736,7 +736,7 @@ def contour_cells(cfg, strike, head, tab, done, out):
     nodes_out, error, status, route = out[3], out[4], out[5], out[6]
     for r in range(STRIP_ROWS):
         out[r, n] = math.nan
-    var, freq, big_c, damp, bend = _maturity_scales(t, kappa, theta, sigma, rho, v0)
+    var, freq, big_c, damp, bend = maturity_scales(t, kappa, theta, sigma, rho, v0)
     evals = 0
     if head[0, 3] != 1.0:  # a new (or reused) table: no cell, no node yet
         done[:, :] = 0
@@ -831,13 +831,7 @@ def contour_cells(cfg, strike, head, tab, done, out):
         status[m] = code
         error[m] = scale * est / math.pi
         if code == CERTIFIED:
-            price[m] = _finish(value, a, k, put, scale)
+            price[m] = finish_price(value, a, k, put, scale)
     out[0, n] = ends[0]
     out[1, n] = ends[1]
     out[2, n] = evals + fills[0]
-
-
-#: The per-maturity scales and the price from the integral, for the compiled
-#: kernels of other modules (the contour Greeks in ``contour_greeks_kernels``).
-maturity_scales = _maturity_scales
-finish_price = _finish

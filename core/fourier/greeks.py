@@ -46,13 +46,13 @@ from types import MappingProxyType
 
 import numpy as np
 
-from rootvar.core.fourier.contour import TOLERANCE as CONTOUR_TOLERANCE
 from rootvar.core.fourier.contour_greeks import ESTIMATORS as CONTOUR_ESTIMATORS
 from rootvar.core.fourier.contour_greeks import (
     certified,
     greek_table,
     handover_reason,
     route_note,
+    tolerance_row,
     values_of,
 )
 from rootvar.core.fourier.contour_greeks_kernels import contour_greeks
@@ -429,14 +429,16 @@ def _contour_tolerances(spot, greek_tol):
     """The contour kernel's tolerances (the price's, then each Greek's; ``greek_tol`` is
     ``GREEK_TOL``, read by the caller so that a changed constant is seen) and the note
     stating them.  Remembered: a column of cells has one spot."""
-    tol = _tolerances(spot)
     # kept writeable, and never written: a read-only array is another compiled signature
-    row = np.array([CONTOUR_TOLERANCE * spot] + [tol[name] for name in GREEK_NAMES])
-    grid = (
+    return tolerance_row(spot, _tolerances(spot)), _tolerance_note(greek_tol)
+
+
+def _tolerance_note(greek_tol) -> str:
+    """The tolerances every Fourier Greeks result states, for either route."""
+    return (
         f"tolerances: {greek_tol:g} x spot (price-like), {greek_tol:g} (delta), "
         f"{greek_tol:g} / spot (gamma)"
     )
-    return row, grid
 
 
 def _cos_strip(params, spot, strike, t, rate, q, kind):
@@ -517,8 +519,7 @@ def _cos_strip(params, spot, strike, t, rate, q, kind):
 
     grid = (
         f"COS range [{lower:.4g}, {upper:.4g}] of ln(S_T/S_0) and its double, "
-        f"{2 * terms} terms; tolerances: {GREEK_TOL:g} x spot (price-like), "
-        f"{GREEK_TOL:g} (delta), {GREEK_TOL:g} / spot (gamma)"
+        f"{2 * terms} terms; {_tolerance_note(GREEK_TOL)}"
     )
     market = (spot, t, rate, q, kind)
     return tuple(

@@ -58,7 +58,7 @@ _RESTART = 32
 
 
 @njit(cache=True, inline="always")
-def _maturity_derivative(u, kappa, theta, sig, rho, v0, drift, b):
+def maturity_derivative_at(u, kappa, theta, sig, rho, v0, drift, b):
     """``d ln phi / dT`` from ``b = d ln phi / d v0`` (the Riccati equations).
 
     ``ln phi = i u mu T + A(T) + B(T) v0`` with ``A' = kappa theta B`` and
@@ -98,7 +98,7 @@ def greek_coefficients(step, count, t, model, drift, lower):
     for j in range(count):
         w = j * step
         r = log_cf_gradient_at(w, t, kappa, theta, sig, rho, v0, drift)
-        d_t = _maturity_derivative(w, kappa, theta, sig, rho, v0, drift, r[1])
+        d_t = maturity_derivative_at(w, kappa, theta, sig, rho, v0, drift, r[1])
         cf = cmath.exp(r[0])
         for g in range(2):
             if g == 0 and j % 2 == 1:  # the certified range owns the even frequencies
@@ -220,7 +220,7 @@ def greek_tails(u, t, model, drift, spot, max_strike, disc):
     for i in range(n):
         w = u[i]
         r = log_cf_gradient_at(w, t, kappa, theta, sig, rho, v0, drift)
-        d_t = _maturity_derivative(w, kappa, theta, sig, rho, v0, drift, r[1])
+        d_t = maturity_derivative_at(w, kappa, theta, sig, rho, v0, drift, r[1])
         size = math.exp(r[0].real)
         price_like = disc * 4.0 * max_strike / (math.pi * w * w) * size
         f[0, i] = price_like
@@ -235,8 +235,3 @@ def greek_tails(u, t, model, drift, spot, max_strike, disc):
         for p in range(9):
             tail[p, i] = tail[p, i + 1] + max(f[p, i], f[p, i + 1]) * width
     return tail
-
-
-#: The derivative in maturity of ``ln phi`` (the Riccati equations), for the
-#: compiled kernels of other modules (the contour Greeks, at complex ``u``).
-maturity_derivative_at = _maturity_derivative

@@ -5,6 +5,7 @@ import math
 
 import numpy as np
 import pytest
+from support.greek_boxes import greek_box
 
 import rootvar.core.fourier.contour_greeks_kernels as kernels
 import rootvar.core.fourier.greeks as fourier_greeks
@@ -31,36 +32,6 @@ def _on_contour(g):
     return all("contour" in g.estimators[name] for name in GREEK_NAMES)
 
 
-def _box(seed, count, hard):
-    """Seeded cases: model, maturity, strike (in sd of the log-price), rates, kind (the
-    boxes of tests/core/fourier/test_greeks.py)."""
-    rng = np.random.default_rng(seed)
-    for i in range(count):
-        if hard:
-            p = HestonParams(
-                float(np.exp(rng.uniform(np.log(1e-3), np.log(0.3)))),
-                rng.uniform(0.05, 6.0),
-                rng.uniform(0.005, 0.2),
-                rng.uniform(0.05, 2.0),
-                rng.uniform(-0.99, 0.9),
-            )
-            t = float(np.exp(rng.uniform(np.log(1 / 365), np.log(10.0))))
-            z = rng.uniform(-4.0, 4.0)
-        else:
-            p = HestonParams(
-                rng.uniform(0.01, 0.16),
-                rng.uniform(0.3, 4.0),
-                rng.uniform(0.01, 0.16),
-                rng.uniform(0.1, 1.2),
-                rng.uniform(-0.95, 0.5),
-            )
-            t = float(np.exp(rng.uniform(np.log(0.05), np.log(5.0))))
-            z = rng.uniform(-2.0, 2.0)
-        strike = SPOT * math.exp(z * math.sqrt(p.theta * t))
-        rate, q = rng.uniform(-0.01, 0.06), rng.uniform(0.0, 0.04)
-        yield p, SPOT, strike, t, rate, q, ("call", "put")[i % 2]
-
-
 # --- against the COS series' Greeks ---
 
 
@@ -84,7 +55,7 @@ def test_agree_with_cos_greeks_and_the_estimates_bound_the_gap(seed, count, hard
     # 40-digit evaluation of the contour integral (mpmath 1.3, by hand) of the worst
     # (d_vol_of_vol, vol_of_vol 0.013, a put 13 x spot) is 1e-14 from the contour's.
     worst = 0.0
-    for case in _box(seed, count, hard):
+    for case in greek_box(seed, count, hard):
         g = heston_greeks(*case)
         c = heston_greeks(*case, method="cos")
         assert _on_contour(g), (case, g.notes)

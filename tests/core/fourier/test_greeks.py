@@ -6,6 +6,7 @@ import math
 
 import numpy as np
 import pytest
+from support.greek_boxes import greek_box
 
 import rootvar.core.fourier.greeks as fourier_greeks
 from rootvar.core import (
@@ -169,35 +170,6 @@ def _differences(p, spot, strike, t, rate, q, kind):
     return {name: float(value) for name, value in out.items()}, float(oracle.price(kind))
 
 
-def _box(seed, count, hard):
-    """Seeded cases: model, maturity, strike (in sd of the log-price), rates, kind."""
-    rng = np.random.default_rng(seed)
-    for i in range(count):
-        if hard:
-            p = HestonParams(
-                float(np.exp(rng.uniform(np.log(1e-3), np.log(0.3)))),
-                rng.uniform(0.05, 6.0),
-                rng.uniform(0.005, 0.2),
-                rng.uniform(0.05, 2.0),
-                rng.uniform(-0.99, 0.9),
-            )
-            t = float(np.exp(rng.uniform(np.log(1 / 365), np.log(10.0))))
-            z = rng.uniform(-4.0, 4.0)
-        else:
-            p = HestonParams(
-                rng.uniform(0.01, 0.16),
-                rng.uniform(0.3, 4.0),
-                rng.uniform(0.01, 0.16),
-                rng.uniform(0.1, 1.2),
-                rng.uniform(-0.95, 0.5),
-            )
-            t = float(np.exp(rng.uniform(np.log(0.05), np.log(5.0))))
-            z = rng.uniform(-2.0, 2.0)
-        strike = 100.0 * math.exp(z * math.sqrt(p.theta * t))
-        rate, q = rng.uniform(-0.01, 0.06), rng.uniform(0.0, 0.04)
-        yield p, 100.0, strike, t, rate, q, ("call", "put")[i % 2]
-
-
 @pytest.mark.parametrize(
     "seed, count, hard",
     [(2201, 30, False), (7, 16, True)],
@@ -219,7 +191,7 @@ def test_every_greek_matches_extended_precision_differences_of_the_price(seed, c
     floor = {name: 1e-2 for name in GREEK_NAMES} | {"gamma": 0.5}
     if not _EXTENDED:
         floor = dict.fromkeys(GREEK_NAMES, 1.0)
-    for case in _box(seed, count, hard):
+    for case in greek_box(seed, count, hard):
         tol = fourier_greek_tolerances(case[1])
         ref, ref_price = _differences(*case)
         for method in ("auto", "cos"):
