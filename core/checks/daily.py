@@ -25,7 +25,7 @@ from rootvar.core.checks.vanilla import (
     UNDECIDED,
     compare_mc_fourier,
 )
-from rootvar.core.montecarlo.european import mc_price
+from rootvar.core.montecarlo.european import BLOCK, mc_price
 from rootvar.core.montecarlo.schemes import SCHEMES
 from rootvar.core.params import HestonParams
 from rootvar.core.validation import InputError
@@ -38,7 +38,17 @@ from rootvar.core.variance.euler import (
     regime_label,
 )
 
-__all__ = ["CHECK_FAILED", "ControlSettings", "ModelSpec", "check_model", "row_seed"]
+__all__ = [
+    "CHECK_FAILED",
+    "ControlSettings",
+    "ModelSpec",
+    "check_model",
+    "recommended_run",
+    "row_seed",
+    "screen_paths",
+    "screened_out",
+    "search_cells",
+]
 
 #: Verdict of a test option whose Monte Carlo check could not be formed.
 CHECK_FAILED = "check failed"
@@ -120,41 +130,140 @@ def recommendation_grid(settings: ControlSettings, maturity: float):
     return schemes, grid
 
 
-def recommended_run(spec, settings, seed, maturity, strike) -> str:
-    """Cheapest consistent scheme and step for one failing option.
+#: A search cell's screening run takes this share of the production paths
+#: (whole blocks of :data:`~rootvar.core.montecarlo.european.BLOCK`; none
+#: below one block).
+SCREEN_SHARE = 8
+#: A cell is screened out when its screening band, scaled to the production
+#: paths, is wider than this many tolerances.
+SCREEN_MARGIN = 1.25
 
-    The answer is the step study's ``cheapest`` cell (lowest steps x
-    :data:`SCHEME_COST`, ties to the earlier scheme, then the fewer steps),
-    found without running the whole study: the cells are tried in that order
-    and the first consistent one is the answer, since every cell is run with
-    the same seed and settings as in the study.  A book where most failing
-    options settle on a coarse QE step then pays one or two runs, not fifteen.
+
+def screen_paths(paths: int) -> int:
+    """Paths of a search cell's screening run: whole blocks, about 1/8 of ``paths`` (0: none)."""
+    return (int(paths) // (SCREEN_SHARE * BLOCK)) * BLOCK
+
+
+def _compare(spec, settings, seed, maturity, strike, scheme, steps, paths):
+    return compare_mc_fourier(
+        spec.params,
+        spec.spot,
+        strike,
+        maturity,
+        spec.rate,
+        spec.div_yield,
+        "call",
+        scheme,
+        steps,
+        paths,
+        seed,
+        False,
+        True,
+        settings.tolerance_bp,
+        None,
+        settings.z,
+    )
+
+
+def screened_out(screen, paths: int, margin: float = SCREEN_MARGIN) -> str:
+    """Why a cell's screening run rules out a consistent verdict at ``paths`` ("" if it does not).
+
+    Two tests, each on the screening run's own paths:
+
+    - its verdict is "biased": the 3-standard-error band already lies
+      wholly outside the tolerance (the verdict's own test, at fewer paths);
+    - its standard error scaled to the production paths,
+      ``s sqrt(n_screen / paths)`` (the error of a Monte Carlo mean falls
+      as the square root of the paths; Glasserman 2004, sec. 1.1), gives a
+      band ``z s`` wider than ``margin`` tolerances.  A consistent verdict
+      needs ``|d| + z s <= tol``, so it needs ``z s <= tol``: the production
+      run cannot reach it unless its standard error came out below the
+      screening estimate by a factor ``margin``.
+
+    Parameters
+    ----------
+    screen : Comparison
+        The check of the screening run (one strike).
+    paths : int
+        Production paths the cell would be run at.
+    margin : float
+        Tolerances the scaled band must exceed, > 1.
+
+    Returns
+    -------
+    str
+        The reason, or "" when the cell must be run at ``paths``.
+
+    References
+    ----------
+    Glasserman, P. (2004), *Monte Carlo Methods in Financial Engineering*,
+    Springer, sec. 1.1 (section number from memory).
+    """
+    if screen.verdict == BIASED:
+        return "biased on the screening paths"
+    tol = float(screen.tolerance_price)
+    band = screen.z * float(screen.mc.std_error) * math.sqrt(screen.mc.paths / paths)
+    if math.isfinite(tol) and tol > 0 and band > margin * tol:
+        return f"band {band / tol:.2f} tolerances at {paths:,} paths (from the screening run)"
+    return ""
+
+
+def search_cells(spec, settings, seed, maturity, strike):
+    """The recommendation search, cell by cell, cheapest first, up to the first consistent cell.
+
+    Yields
+    ------
+    tuple
+        ``(scheme, steps, verdict, screened)`` per cell tried: ``screened``
+        is the reason a screening run ruled the cell out ("" when it was run
+        at the production paths, whose verdict ``verdict`` then is).
+
+    Notes
+    -----
+    Cells go in the step study's order (lowest steps x :data:`SCHEME_COST`,
+    ties to the earlier scheme, then the fewer steps).  With enough paths
+    each cell first runs on :func:`screen_paths` paths, which are the first
+    blocks of its production run (same seed: block ``j`` has the same stream
+    in both); :func:`screened_out` then skips the production run when it
+    cannot be consistent.  A skipped cell is never the answer, so a screening
+    error can only pass over a consistent cell (the answer is then a dearer
+    cell or none), never recommend one that was not run in full and found
+    consistent.
     """
     schemes, grid = recommendation_grid(settings, maturity)
     cells = sorted(
         ((n * SCHEME_COST[s], i, n, s) for i, s in enumerate(schemes) for n in grid),
         key=lambda c: c[:3],
     )
+    few = screen_paths(settings.paths)
     for _, _, n, scheme in cells:
-        cmp_ = compare_mc_fourier(
-            spec.params,
-            spec.spot,
-            strike,
-            maturity,
-            spec.rate,
-            spec.div_yield,
-            "call",
-            scheme,
-            n,
-            settings.paths,
-            seed,
-            False,
-            True,
-            settings.tolerance_bp,
-            None,
-            settings.z,
-        )
+        if few:
+            screen = _compare(spec, settings, seed, maturity, strike, scheme, n, few)
+            why = screened_out(screen, settings.paths)
+            if why:
+                yield scheme, n, str(screen.verdict), why
+                continue
+        cmp_ = _compare(spec, settings, seed, maturity, strike, scheme, n, settings.paths)
+        yield scheme, n, str(cmp_.verdict), ""
         if cmp_.verdict == CONSISTENT:
+            return
+
+
+def recommended_run(spec, settings, seed, maturity, strike) -> str:
+    """Cheapest consistent scheme and step for one failing option.
+
+    The answer is the step study's ``cheapest`` cell (lowest steps x
+    :data:`SCHEME_COST`, ties to the earlier scheme, then the fewer steps),
+    found without running the whole study (:func:`search_cells`): the cells
+    are tried in that order and the first consistent one is the answer,
+    since every cell is run with the same seed and settings as in the study.
+    A cell that a screening run on an eighth of the paths shows cannot be
+    consistent is not run in full; so a book where most failing options
+    settle on a coarse QE step pays one or two runs, and a model no cell can
+    settle at these paths pays about two instead of fifteen.
+    """
+    for scheme, n, verdict, screened in search_cells(spec, settings, seed, maturity, strike):
+        if verdict == CONSISTENT and not screened:
             return f"{scheme} at {n / maturity:.0f} steps a year"
     return "none consistent at these paths; raise paths or steps"
 
