@@ -19,6 +19,7 @@ from rootvar.core.fourier import (
     cos_kernels,
     gradient_kernels,
 )
+from rootvar.core.fourier import greeks_kernels as cos_greeks_kernels
 from rootvar.core.montecarlo import exotic_kernels as mc_exotic_kernels
 from rootvar.core.montecarlo import greeks_kernels as mc_greeks_kernels
 from rootvar.core.montecarlo import kernels as mc_kernels
@@ -43,6 +44,9 @@ KERNELS = (
     contour_kernels.contour_cells,
     contour_kernels.contour_strip,
     contour_greeks_kernels.contour_greeks,
+    cos_greeks_kernels.greek_coefficients,
+    cos_greeks_kernels.greek_payoff_sums,
+    cos_greeks_kernels.greek_tails,
 )
 
 
@@ -79,6 +83,7 @@ def compile_kernels() -> float:
     _compile_exotics(p)
     _compile_greeks(p)
     heston_greeks(p, 100.0, 100.0, 1.0)  # the contour route's Greeks
+    heston_greeks(p, 100.0, 100.0, 1.0, method="cos")  # the COS Greeks (the hand-over route)
     heston_price_gradient(p, 100.0, [90.0, 110.0], 1.0)  # the calibration's kernels
     log_cf_gradient([1.0], p, 1.0)
     return time.perf_counter() - start
