@@ -48,7 +48,18 @@ an identity gives its bits: without a rebate (or for a knock-in, whose
 Greeks never read them) the rebates' tangents, which stay +0.0; ``exp(0)``
 and ``N(+-inf)`` in the last step's Gaussian integrals; the last step's
 ``ln K`` and ``b``, formed once a path rather than once a stencil point;
-full truncation's ``dI = max(v, 0) dt`` formed again rather than stored.
+full truncation's ``dI = max(v, 0) dt``, ``sqrt(f3(v))`` and log-price
+deviation formed again in its barrier tangent loop rather than stored (the
+same operations on the same number: the same bits, and fewer streams
+through the caches, which two threads on one core share); a step that
+loses no weight (``keep`` exactly 1) stores neither the weight nor the
+rebates back, and without a rebate the rebates are not updated (they add
++0.0 to +0.0).  For a knock-out without rebate, the last step's survival
+integral, read only times the rebate, is not formed, and a path knocked
+out before the last step is given Greeks 0 without its closed form: there
+every Greek is a sum of exact zeros times finite numbers (checked; a
+non-finite one sends the path through the formulas, whose NaN it keeps),
+and a zero's sign never reaches the sums, which start at +0.0.
 """
 
 from __future__ import annotations
@@ -350,16 +361,19 @@ def _barrier_tangents(n, inp, fmap, w, c, rho, one_rho2, carry, inv_t, tv, tx):
         _shift_x(n, inp, tx)
         return
     dt, theta, kdt, sq_dt, sq = c[0], c[2], c[4], c[5], c[6]
-    xo, ro, z = inp[IN_X], inp[IN_ROOT], inp[IN_Z]
-    zx, sr = inp[IN_ZX], inp[IN_SROOT]
+    xo, z, zx = inp[IN_X], inp[IN_Z], inp[IN_ZX]
     tv0, tv1, tv2, tv3 = tv[0], tv[1], tv[2], tv[3]
     tx0, tx1, tx2, tx3, tx_rho, tx_scale = tx[0], tx[1], tx[2], tx[3], tx[4], tx[5]
     for i in range(n):
-        x, root, zi = xo[i], ro[i], z[i]
-        # the step's dI, formed again as the step loop forms it (f3 = max(v, 0)): one
-        # stream fewer to store there and to load here
+        x, zi = xo[i], z[i]
+        # the step's dI, sqrt(f3(v)) and log-price deviation, formed again by the step
+        # loop's operations (f3 = max(v, 0)): three streams fewer to store there and to
+        # load here, for two square roots on vector instructions
+        d_int = max(x, 0.0) * dt
+        root = math.sqrt(max(x, 0.0))
+        s_root = math.sqrt(max(one_rho2 * d_int, 0.0))
         noise, inc_rho, inc_scale = _euler_increments(
-            max(x, 0.0) * dt, root, zi, zx[i], sr[i], sq_dt, rho, carry, inv_t
+            d_int, root, zi, zx[i], s_root, sq_dt, rho, carry, inv_t
         )
         p = np.float64(x > 0.0)
         g = 0.5 * p / max(root, _TINY_ROOT)
@@ -789,7 +803,9 @@ def _gauss_exp(c, lo, hi, mu, s):
 
 
 @njit(cache=True, error_model="numpy")
-def _last_step(xp, drift, d_int, one_rho2, side, log_b, sign, strike, knock_in, k_rel, spot_b):
+def _last_step(
+    xp, drift, d_int, one_rho2, side, log_b, sign, strike, knock_in, k_rel, spot_b, need_keep
+):
     """The last step of a barrier path integrated over its log-price normal, in closed form.
 
     Given the path up to the last step's start ``xp`` (log-price) and the
@@ -803,7 +819,9 @@ def _last_step(xp, drift, d_int, one_rho2, side, log_b, sign, strike, knock_in, 
     ``E[e^{c y} 1{lo < y < hi}]``.  The price kernel's cut-off (``keep = 1``
     once ``2 d0 d1 >= 38 dI``, where ``1 - keep < 6e-9``) is not applied: the
     difference is below that.  ``k_rel = ln K - ln b`` and ``spot_b = b`` are
-    the caller's (the same for every call on a path).
+    the caller's (the same for every call on a path).  Without ``need_keep``
+    ``E[keep]`` is returned as 0 and not formed: a knock-out without rebate
+    reads it only times the rebate, 0 (two of the six Gaussian integrals).
     """
     mu = xp + drift - log_b
     pay_lo, pay_hi = (k_rel, math.inf) if sign > 0.0 else (-math.inf, k_rel)
@@ -825,7 +843,9 @@ def _last_step(xp, drift, d_int, one_rho2, side, log_b, sign, strike, knock_in, 
     c = -2.0 * d0 * side / d_int
     live = spot_b * _gauss_exp(1.0, lo, hi, mu, s) - strike * _gauss_exp(0.0, lo, hi, mu, s)
     crossed = spot_b * _gauss_exp(1.0 + c, lo, hi, mu, s) - strike * _gauss_exp(c, lo, hi, mu, s)
-    survive = _gauss_exp(0.0, live_lo, live_hi, mu, s) - _gauss_exp(c, live_lo, live_hi, mu, s)
+    survive = 0.0
+    if need_keep:
+        survive = _gauss_exp(0.0, live_lo, live_hi, mu, s) - _gauss_exp(c, live_lo, live_hi, mu, s)
     return sign * (live - crossed), survive, plain
 
 
@@ -983,6 +1003,8 @@ def exotic_greeks_block(
     b_keep = np.empty(n_b)
     b_base = np.empty(n_b)
     b_int = np.empty(n_b)
+    b_root = np.empty(n_b)
+    b_sroot = np.empty(n_b)
     # the last step's start and quantities
     last_alive = np.zeros(n_b)
     last_rebate = np.zeros(n_b)
@@ -1005,6 +1027,8 @@ def exotic_greeks_block(
     # number, a signed zero, to +0.0), and a knock-in's Greeks never read them (its
     # rebate is paid at expiry), so their updates are left out: the same bits
     paid = rebate != 0.0 and pay[P_KNOCK_IN] == 0.0
+    # full truncation's barrier tangents form sqrt(f3(v)) again (the digital's read it)
+    keep_root = not (barrier and full)
     for k in range(steps):
         c = consts[which[k]]
         dt, kappa, theta, sigma = c[0], c[1], c[2], c[3]
@@ -1026,6 +1050,7 @@ def exotic_greeks_block(
         for i in range(size):
             old = v[i]
             adj = 0.0
+            root = 0.0
             if euler:
                 out = fixed_variance(fmap[2], old)
                 root = math.sqrt(out)
@@ -1038,7 +1063,8 @@ def exotic_greeks_block(
                 d_int = out * dt
                 d_mart = c[5] * root_z
                 inp[IN_X, i] = old
-                inp[IN_ROOT, i] = root
+                if keep_root:
+                    inp[IN_ROOT, i] = root
             else:
                 if kind == EXACT:
                     new = c[5] * u[i]
@@ -1075,8 +1101,8 @@ def exotic_greeks_block(
                         last_ti[p, i] = b * tv[p, i]
                         last_tm[p, i] = m * tv[p, i]
             elif euler:  # the increments follow in _barrier_tangents, a vector loop
-                inp[IN_SROOT, i] = s_root
-                if not full:  # full truncation's is formed again in _barrier_tangents
+                if not full:  # full truncation's are formed again in _barrier_tangents
+                    inp[IN_SROOT, i] = s_root
                     inp[IN_DINT, i] = d_int
                 if k == 0:
                     score[i] = zx[i] / s_root if s_root > 0.0 else 0.0
@@ -1101,17 +1127,21 @@ def exotic_greeks_block(
                 keep = 1.0 - e
             else:
                 keep = 1.0
+            if keep >= 1.0:  # nothing lost (keep is 1 exactly): alive and the rebates keep
+                continue  # their bits without the stores
             base = alive[i]
             lost = base * (1.0 - keep)
             alive[i] -= lost
-            rebate_paid[i] += rebate * lost * d_end
-            if final or keep >= 1.0:
+            if rebate != 0.0:  # else it adds +0.0 to +0.0
+                rebate_paid[i] += rebate * lost * d_end
+            if final:
                 continue
             # kept in list order, not by path: the loop below then reads them in sequence
             h = n_near
             near[h] = i
             n_near += 1
             b_d0[h], b_d1[h], b_e[h], b_keep[h], b_base[h], b_int[h] = d0, d1, e, keep, base, d_int
+            b_root[h], b_sroot[h] = root, s_root
 
         # the survival weight's tangents on the paths whose bridge moved (the log-price
         # and variance tangents still at the step's start)
@@ -1123,9 +1153,9 @@ def exotic_greeks_block(
             for p in range(N_D - 3):
                 end_t[p] = tx[p, i]
             if euler:
-                x_i, root_i, z_i = inp[IN_X, i], inp[IN_ROOT, i], z[i]
+                x_i, root_i, z_i = inp[IN_X, i], b_root[h], z[i]
                 noise, step_rho, step_scale = _euler_increments(
-                    d_int, root_i, z_i, zx[i], inp[IN_SROOT, i], c[5], rho, carry, inv_t
+                    d_int, root_i, z_i, zx[i], b_sroot[h], c[5], rho, carry, inv_t
                 )
                 if full:  # _coefficients at full truncation's weights, as _barrier_tangents
                     p_i = np.float64(x_i > 0.0)
@@ -1207,6 +1237,8 @@ def exotic_greeks_block(
     last_dt = times[steps] - times[steps - 1]
     last_t = times[steps - 1]
     dy = np.zeros(N_D)
+    # a knock-out without rebate: a path knocked out before the last step has Greeks 0
+    zero_dead = barrier and not knock_in and rebate == 0.0
     bad = 0
     for i in range(size):
         if not (math.isfinite(x[i]) and math.isfinite(v[i])):
@@ -1243,6 +1275,17 @@ def exotic_greeks_block(
             else:
                 value = value * alive[i] + rebate_paid[i]
             rows[r, Q_PRICE] = value
+            if zero_dead and last_alive[i] == 0.0 and _finite_state(
+                i, euler, tx, t_alive, last_ti, last_tm, alive_uu, score, k0, k0_total,
+                k0_start, k0_cross, last_int, last_mart,
+            ):  # fmt: skip
+                # knocked out before the last step, no rebate: _barrier_greeks would form
+                # every Greek as sums of exact zeros times these finite numbers, so +-0.0
+                # (a zero's sign never reaches the sums, which start at +0.0); with a
+                # non-finite tangent it runs, and gives its NaN
+                for q in range(1, N_Q):
+                    rows[r, q] = 0.0
+                continue
             _barrier_greeks(
                 rows, r, i, knock_in, rebate, d_pay, sign, strike, side, log_b, one_rho2, rho,
                 euler, spot, maturity, inv_t, rate, mu, last_dt, last_t, disc[1], market,
@@ -1255,6 +1298,28 @@ def exotic_greeks_block(
     counts[0] = used
     counts[1] = bad
     return sums, squares, counts
+
+
+@njit(cache=True, inline="always")
+def _finite_state(
+    i, euler, tx, t_alive, last_ti, last_tm, alive_uu, score, k0, k0_total, k0_start, k0_cross,
+    last_int, last_mart,
+):  # fmt: skip
+    """Whether every number :func:`_barrier_greeks` reads of barrier path ``i`` is finite.
+
+    Their sum is finite when they all are (an overflowing sum only says no,
+    which sends the path to the full formulas: never a wrong answer).
+    """
+    total = alive_uu[i] + score[i] + k0[i] + k0_total[i] + k0_start[i] + k0_cross[i]
+    total += last_int[i] + last_mart[i]
+    for p in range(N_D - 3):
+        total += tx[p, i]
+    for dn in range(N_D):
+        total += t_alive[i, dn]
+    if euler:
+        for p in range(N_TV):
+            total += last_ti[p, i] + last_tm[p, i]
+    return math.isfinite(total)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1287,7 +1352,13 @@ def _barrier_greeks(
         fo = (by_var * d_int, 0.0, by_var * d_int)
     else:
         # the log and exp every _last_step of the stencil reads, formed once
-        args = (side, log_b, sign, strike, knock_in, math.log(strike) - log_b, math.exp(log_b))
+        # the survival's integral is read only times the rebate (knock-out) or for a
+        # knock-in: without either its terms are exact zeros times finite numbers, +-0.0
+        need_keep = knock_in or rebate != 0.0
+        args = (
+            side, log_b, sign, strike, knock_in, math.log(strike) - log_b, math.exp(log_b),
+            need_keep,
+        )  # fmt: skip
         hx = _FD_SHARE * math.sqrt(max(one_rho2 * d_int, 0.0))
         if hx == 0.0:
             hx = _FD_SHARE * 1e-3

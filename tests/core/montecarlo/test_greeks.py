@@ -210,8 +210,119 @@ def test_down_and_out_call_greeks_agree_with_the_pde():
     _within(g, ref, ref)
     for name, bound in {"delta": 0.006, "gamma": 0.006, "d_v0": 0.6, "vega": 0.4}.items():
         assert g.errors[name] < bound, (name, g.errors[name])
-    # the gamma's second (likelihood-ratio) estimator is weighed in from the pilot
+    # the gamma's second (likelihood-ratio) estimator is weighed in, cross-fitted
     assert "likelihood ratio" in g.estimators["gamma"]
+    assert "cross-fitted" in g.estimators["gamma"] and "pilot" not in g.estimators["gamma"]
+
+
+@functools.lru_cache
+def _doc_pde():
+    return pde_price(OK, 100.0, DOC)
+
+
+@pytest.mark.parametrize("seed", range(10, 16))
+def test_the_cross_fitted_barrier_delta_and_gamma_agree_with_the_pde_over_seeds(seed):
+    # reference: pde_price (ADI, in 't Hout & Foulon 2010) on its finest grid.  Each half's
+    # weight is fitted on the other half's paths (Nelson 1990), so the combination has the
+    # mean of its pathwise estimator: over these seeds delta and gamma stay within K_SE
+    # standard errors of the PDE, as the pathwise estimators do
+    pde = _doc_pde()
+    g = mc_greeks(OK, 100.0, DOC, paths=40_000, seed=seed)
+    _within(g, {"delta": pde.delta, "gamma": pde.gamma}, ("delta", "gamma"))
+
+
+def test_the_cross_fitted_pooled_over_seeds_is_unbiased_to_a_tighter_band():
+    # reference: pde_price, as above.  The mean of 6 independent seeds has an error
+    # sqrt(sum se^2) / 6; a bias of the combination (as a weight fitted on its own paths
+    # would give) would show against this tighter band first
+    pde = _doc_pde()
+    runs = [mc_greeks(OK, 100.0, DOC, paths=40_000, seed=seed) for seed in range(10, 16)]
+    for name, ref in (("delta", pde.delta), ("gamma", pde.gamma)):
+        mean = np.mean([g.values[name] for g in runs])
+        error = np.sqrt(np.sum([g.errors[name] ** 2 for g in runs])) / len(runs)
+        assert abs(mean - ref) <= K_SE * error, (name, mean, ref, error)
+
+
+def test_a_one_block_barrier_run_gives_the_likelihood_ratio_weight_0_and_says_so():
+    # one block has no second half to fit a weight on: the pathwise estimator alone
+    g = mc_greeks(OK, 100.0, DOC, paths=BLOCK, steps=16, seed=3)
+    for name in ("delta", "gamma"):
+        assert "weight 0: one block, nothing to cross-fit" in g.estimators[name]
+    assert any(note.startswith("delta and gamma: one block of paths") for note in g.notes)
+    # two blocks: cross-fitted, and no such note
+    two = mc_greeks(OK, 100.0, DOC, paths=2 * BLOCK, steps=16, seed=3)
+    assert "cross-fitted weights" in two.estimators["delta"]
+    assert not any(note.startswith("delta and gamma: one block") for note in two.notes)
+
+
+def test_the_cross_fitted_combination_is_the_formula_on_the_two_halves_run_apart(monkeypatch):
+    # Each half recomputed from its own blocks, run one by one through the kernel from
+    # their own streams (the blocks of SeedSequence(seed), children j = 0, 2, ... and
+    # 1, 3, ...): beta_E from O's moments and beta_O from E's, each half's
+    # mean(A) - beta (mean(A) - mean(B)), their path-weighted average, and the error
+    # sqrt(n_E var_E(beta_O) + n_O var_O(beta_E)) / n (Nelson 1990; Glasserman 2004,
+    # sec. 4.1), against mc_greeks
+    from rootvar.core.montecarlo import greeks as greeks_module
+    from rootvar.core.montecarlo import greeks_kernels as gk
+    from rootvar.core.montecarlo.european import block_seed
+
+    seen = []
+    kernel = greeks_module.exotic_greeks_block
+
+    def spy(gen, size, anti, *args):
+        seen.append((size, anti, args))
+        return kernel(gen, size, anti, *args)
+
+    monkeypatch.setattr(greeks_module, "exotic_greeks_block", spy)
+    monkeypatch.setattr(greeks_module, "notice_if_cold", lambda *kernels: None)
+    paths, seed = 5 * BLOCK + 1000, 21  # 6 blocks, the last short: halves of 3 blocks
+    g = mc_greeks(FO, 100.0, DOC, 0.02, 0.01, paths=paths, steps=32, seed=seed)
+    monkeypatch.undo()
+    _, anti, args = seen[0]
+    sizes = [BLOCK] * 5 + [1000]
+    root = np.random.SeedSequence(seed)
+
+    def half(parity):
+        rows = []
+        for j in range(parity, len(sizes), 2):
+            gen = np.random.Generator(np.random.SFC64(block_seed(root, j)))
+            sums, squares, counts = kernel(gen, sizes[j], anti, *args)
+            rows.append((sums, squares, counts[0]))
+        sums = np.sum([r[0] for r in rows], axis=0)
+        squares = np.sum([r[1] for r in rows], axis=0)
+        return sums, squares, int(np.sum([r[2] for r in rows]))
+
+    halves = [half(0), half(1)]
+    n = sum(h[2] for h in halves)
+    assert n == paths // 2  # antithetic pairs
+
+    def stats(h, a, b, j):
+        sums, squares, m = h
+        mean_a, mean_b = sums[a] / m, sums[b] / m
+        var_a = (squares[a] / m - mean_a**2) * m / (m - 1)
+        var_b = (squares[b] / m - mean_b**2) * m / (m - 1)
+        cov = (sums[gk.N_Q + j] / m - mean_a * mean_b) * m / (m - 1)
+        return m, mean_a, mean_b, var_a, var_b, cov
+
+    for j, (a, b) in enumerate(gk.CROSS):
+        even, odd = stats(halves[0], a, b, j), stats(halves[1], a, b, j)
+
+        def beta(h):
+            _, _, _, var_a, var_b, cov = h
+            return (var_a - cov) / (var_a + var_b - 2.0 * cov)
+
+        def combined(h, weight):
+            m, mean_a, mean_b, var_a, var_b, cov = h
+            var = var_a - 2.0 * weight * (var_a - cov) + weight**2 * (var_a + var_b - 2.0 * cov)
+            return mean_a - weight * (mean_a - mean_b), var, m
+
+        value_e, var_e, n_e = combined(even, beta(odd))
+        value_o, var_o, n_o = combined(odd, beta(even))
+        name = gk.QUANTITIES[a]
+        assert g.values[name] == pytest.approx((n_e * value_e + n_o * value_o) / n, rel=1e-10)
+        assert g.errors[name] == pytest.approx(np.sqrt(n_e * var_e + n_o * var_o) / n, rel=1e-8)
+        weights = f"cross-fitted weights {beta(odd):.3g}, {beta(even):.3g})"
+        assert weights in g.estimators[name]
 
 
 def test_down_and_out_greeks_under_qe_with_feller_broken_agree_with_the_pde():
