@@ -74,7 +74,8 @@ ESTIMATOR_LINES = (
      "d_theta": 2, "d_vol_of_vol": 2, "overall": 5},
 )  # fmt: skip
 _FIRST_COL = 4  # column D
-_WIDTHS = {0: 20, 1: 27, 2: 11, 3: 10, 4: 11, 5: 11, 6: 11, 7: 11, 8: 11, 9: 13, 10: 11, 11: 66}
+# paths to settle (10): room for a count in the tens of billions with its separators
+_WIDTHS = {0: 20, 1: 27, 2: 11, 3: 10, 4: 11, 5: 11, 6: 11, 7: 11, 8: 11, 9: 13, 10: 16, 11: 66}
 _TEXT_COLUMNS = ("Greek", "unit", "verdict", "estimator", "Monte Carlo estimator")
 #: The contract rows of the exotics sheet the barrier's Greeks read, and their formats.
 _BARRIER_ARGS = ("kind", "strike", "maturity", "barrier", "direction", "knock")

@@ -442,6 +442,36 @@ def test_greeks_sheet_shows_no_raw_number_and_no_nan(computed):
     assert numbers > 100
 
 
+def _shown(value: float, number_format: str) -> str:
+    """The text a spreadsheet shows for ``value`` in one of the sheet's formats."""
+    section = number_format.split(";")[0 if value >= 0 or ";" not in number_format else 1]
+    sign = "+" if section.startswith("+") else ""
+    body = section.lstrip("+-")
+    if "E+" in body:
+        digits = len(body.split(".")[1].split("E")[0]) if "." in body else 0
+        return sign + f"{value:.{digits}E}"
+    digits = len(body.split(".")[1]) if "." in body else 0
+    return sign + (f"{value:,.{digits}f}" if "," in body else f"{value:.{digits}f}")
+
+
+def test_greeks_sheet_numbers_fit_their_columns(computed):
+    # a number wider than its column shows as ### (a count of billions of paths once did)
+    from rootvar.addin.workbooks.greeks import SHEET
+
+    ws = computed[PRICE_TWICE][1][SHEET]
+    checked = 0
+    for row in ws.iter_rows():
+        for cell in row:
+            if isinstance(cell.value, (int, float)) and not isinstance(cell.value, bool):
+                if cell.number_format == "General":
+                    continue  # held by test_greeks_sheet_shows_no_raw_number_and_no_nan
+                width = ws.column_dimensions[cell.column_letter].width
+                text = _shown(float(cell.value), cell.number_format)
+                assert len(text) <= width - 1, (cell.coordinate, text, width)
+                checked += 1
+    assert checked > 100
+
+
 def test_greeks_sheet_wrapped_texts_fit_their_rows(computed):
     # the Monte Carlo estimators and the notes come from the core; the builder sized the
     # rows for them (ESTIMATOR_LINES), so a longer text shows here rather than clipped
