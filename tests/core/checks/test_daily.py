@@ -312,29 +312,6 @@ def test_bad_as_of_date(tmp_path, capsys):
     assert "--as-of must be a date" in capsys.readouterr().err
 
 
-def test_recommendation_is_the_step_studys_cheapest_consistent_cell():
-    """The early-stopping search returns the full study's answer (identity test)."""
-    from rootvar.core import step_study
-    from rootvar.core.checks.daily import recommendation_grid, recommended_run
-
-    settings = ControlSettings(paths=8192, steps_per_year=16, tolerance_bp=10.0)
-    params = HestonParams(0.04, 0.5, 0.04, 1.0, -0.9)  # Feller ratio 0.04: Euler is biased
-    spec = ModelSpec("T1", "test", 100.0, 0.0, 0.0, params, (1.0,), (1.0,))
-    seed = row_seed(settings.seed, "T1")
-    schemes, grid = recommendation_grid(settings, 1.0)
-    table = step_study(
-        params, 100.0, 100.0, 1.0, 0.0, 0.0, "call", schemes=schemes, steps_grid=grid,
-        paths=settings.paths, seed=seed, conditional=True, tolerance_bp=10.0, z=3.0,
-        antithetic=False,
-    )  # fmt: skip
-    best = table.attrs["cheapest"]
-    text = recommended_run(spec, settings, seed, 1.0, 100.0)
-    if best is None:
-        assert text.startswith("none consistent")
-    else:
-        assert text == f"{best['scheme']} at {best['steps']:.0f} steps a year"
-
-
 def test_rows_carry_the_worst_case_of_one_euler_step_and_how_often_it_is_visited():
     from rootvar.core import cir_transition, euler_worst_case
 

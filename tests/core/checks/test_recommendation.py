@@ -73,11 +73,19 @@ def test_the_margin_decides_on_the_scaled_band():
 
 
 @pytest.mark.parametrize(
-    ("params", "tolerance_bp"), [(ANDERSEN_I, 10.0), (LOW_FELLER, 2.0), (LOW_FELLER, 20.0)]
+    ("params", "tolerance_bp", "paths"),
+    [
+        (ANDERSEN_I, 10.0, 2 * BLOCK),  # too few paths to screen: every cell run in full
+        (ANDERSEN_I, 10.0, 8 * BLOCK),
+        (LOW_FELLER, 2.0, 8 * BLOCK),
+        (LOW_FELLER, 20.0, 8 * BLOCK),
+    ],
 )
-def test_screened_cells_are_never_consistent_and_the_answer_is_the_studys(params, tolerance_bp):
-    """Identity test against the full step study, at paths where screening runs."""
-    settings = ControlSettings(paths=8 * BLOCK, steps_per_year=16, tolerance_bp=tolerance_bp)
+def test_screened_cells_are_never_consistent_and_the_answer_is_the_studys(
+    params, tolerance_bp, paths
+):
+    """Identity test: the search's answer is the full step study's cheapest consistent cell."""
+    settings = ControlSettings(paths=paths, steps_per_year=16, tolerance_bp=tolerance_bp)
     spec = ModelSpec("T1", "test", 100.0, 0.0, 0.0, params, (1.0,), (1.0,))
     seed = row_seed(settings.seed, "T1")
     schemes, grid = recommendation_grid(settings, 1.0)
@@ -99,5 +107,7 @@ def test_screened_cells_are_never_consistent_and_the_answer_is_the_studys(params
         assert text.startswith("none consistent")
     else:
         assert text == f"{best['scheme']} at {best['steps']:.0f} steps a year"
+    if paths < 8 * BLOCK:
+        assert not any(screened for *_, screened in cells)
     if tolerance_bp == 2.0:  # tight enough that no cell settles: screening must do the work
         assert best is None and all(screened for *_, screened in cells)
